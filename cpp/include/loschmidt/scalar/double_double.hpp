@@ -1,0 +1,329 @@
+// Double-double ("double-word") arithmetic: a real number held as the unevaluated sum hi + lo of
+// two binary64 values, giving a 106-bit significand (unit roundoff u^2 = 2^-106, u = 2^-53).
+//
+// Representation invariant ("normalized"): hi == RN(hi + lo), hence |lo| <= ulp(hi)/2. Every
+// operation below returns a normalized value; dd::raw() skips the check, dd::from_limbs() restores
+// it exactly.
+//
+// Algorithms and their proven relative error bounds (Joldes, Muller & Popescu 2017, "Tight and
+// rigorous error bounds for basic building blocks of double-word arithmetic", ACM TOMS 44(2);
+// algorithm numbers of that paper; the DW*DW bounds as corrected by Muller & Rideau 2022, ACM TOMS
+// 48(1)):
+//   dd + dd    Alg. 6  AccurateDWPlusDW          3u^2 + 13u^3
+//   dd + fp    Alg. 4  DWPlusFP                  2u^2          [memory]
+//   dd * fp    Alg. 9  DWTimesFP3 (FMA)          2u^2          [memory]
+//              Alg. 7  DWTimesFP1 (LOSCHMIDT_NO_FMA)   1.5u^2 + 4u^3
+//   dd * dd    Alg. 12 DWTimesDW3 (FMA)          5u^2 (Muller & Rideau) [memory]
+//              Alg. 10 DWTimesDW1 (LOSCHMIDT_NO_FMA)   7u^2-ish    [memory]
+//   dd / fp    Alg. 13 DWDivFP1                  3.5u^2        [memory]
+//   dd / dd    Alg. 17 DWDivDW2                  15u^2 + 56u^3
+//   sqrt(dd)   one Newton (Heron) correction of the binary64 square root, with the exact
+//              remainder hi - s^2 (Karp & Markstein 1997 style); ~2u^2 by the usual first-order
+//              analysis (common practice) - the test program measures it.
+// The measured maxima over the test vectors are reported by cpp/tests/test_scalar.cpp's driver.
+//
+// None of the hot operations branch (the published algorithms have no branches); sqrt branches
+// only to route zero, negative and infinite arguments.
+//
+// Special values: +-0 and finite results behave; infinities and NaN propagate as non-finite
+// values (typically NaN rather than inf, as inf - inf appears inside the EFTs). Results keep full
+// relative accuracy only while |lo| terms stay normal, i.e. |value| >~ 2^-968, and below overflow.
+// The sign of a zero result is not guaranteed to follow IEEE rules.
+#pragma once
+
+#include <cmath>
+#include <cstdint>
+#include <limits>
+#include <type_traits>
+
+#include "eft.hpp"
+
+namespace loschmidt {
+
+struct dd {
+    double hi;
+    double lo;
+
+    constexpr dd() noexcept : hi(0.0), lo(0.0) {}
+    constexpr dd(double x) noexcept : hi(x), lo(0.0) {}  // NOLINT: implicit on purpose
+
+    // Any integer type, converted exactly (a 64-bit integer needs up to two doubles).
+    template <class I, std::enable_if_t<std::is_integral_v<I>, int> = 0>
+    constexpr dd(I v) noexcept : hi(0.0), lo(0.0) {  // NOLINT: implicit on purpose
+        if constexpr (sizeof(I) < 8) {
+            hi = static_cast<double>(v);  // exact: at most 32 significant bits
+        } else {
+            // Split into a multiple of 2^32 and a remainder below 2^32, both exact doubles; their
+            // TwoSum is then the exact, normalized value.
+            double upper, lower;
+            if constexpr (std::is_signed_v<I>) {
+                const long long q = static_cast<long long>(v) / 4294967296LL;
+                const long long r = static_cast<long long>(v) % 4294967296LL;
+                upper = static_cast<double>(q) * 4294967296.0;
+                lower = static_cast<double>(r);
+            } else {
+                const unsigned long long w = static_cast<unsigned long long>(v);
+                upper = static_cast<double>(w >> 32) * 4294967296.0;
+                lower = static_cast<double>(w & 0xffffffffULL);
+            }
+            hi = two_sum_constexpr(upper, lower, lo);
+        }
+    }
+
+    // Take the limbs as they are (caller guarantees normalization). constexpr, no arithmetic.
+    static constexpr dd raw(double hi, double lo) noexcept {
+        dd r;
+        r.hi = hi;
+        r.lo = lo;
+        return r;
+    }
+
+    // Accept any pair; the result is normalized and equals hi + lo exactly (TwoSum is exact).
+    // A pair that is already normalized comes back bit-for-bit unchanged.
+    static dd from_limbs(double hi, double lo) noexcept {
+        double e;
+        const double s = two_sum(hi, lo, e);
+        return raw(s, e);
+    }
+
+    inline dd& operator+=(const dd& b) noexcept;
+    inline dd& operator-=(const dd& b) noexcept;
+    inline dd& operator*=(const dd& b) noexcept;
+    inline dd& operator/=(const dd& b) noexcept;
+    inline dd& operator+=(double b) noexcept;
+    inline dd& operator-=(double b) noexcept;
+    inline dd& operator*=(double b) noexcept;
+    inline dd& operator/=(double b) noexcept;
+
+private:
+    // TwoSum usable in a constant expression (same flops as loschmidt::two_sum).
+    static constexpr double two_sum_constexpr(double a, double b, double& err) noexcept {
+        const double s = a + b;
+        const double av = s - b;
+        const double bv = s - av;
+        err = (a - av) + (b - bv);
+        return s;
+    }
+};
+
+static_assert(sizeof(dd) == 2 * sizeof(double), "dd must be exactly two packed doubles");
+static_assert(std::is_trivially_copyable_v<dd>, "dd must be trivially copyable");
+
+namespace detail {
+
+// JMP 2017 Alg. 4 (DWPlusFP): TwoSum of the high parts, fold the low part into the error,
+// renormalize. No branch.
+inline dd dd_add_fp(const dd& x, double y) noexcept {
+    double sl;
+    const double sh = two_sum(x.hi, y, sl);
+    const double v = x.lo + sl;
+    double zl;
+    const double zh = fast_two_sum(sh, v, zl);
+    return dd::raw(zh, zl);
+}
+
+// JMP 2017 Alg. 6 (AccurateDWPlusDW). Summing the low parts with a second TwoSum (instead of a
+// plain add, the "sloppy" variant) keeps the bound relative even under cancellation.
+inline dd dd_add(const dd& x, const dd& y) noexcept {
+    double sl, tl;
+    const double sh = two_sum(x.hi, y.hi, sl);
+    const double th = two_sum(x.lo, y.lo, tl);
+    const double c = sl + th;
+    double vl;
+    const double vh = fast_two_sum(sh, c, vl);
+    const double w = tl + vl;
+    double zl;
+    const double zh = fast_two_sum(vh, w, zl);
+    return dd::raw(zh, zl);
+}
+
+// JMP 2017 Alg. 7 (DWTimesFP1): no fma beyond the one in two_prod; bound 1.5u^2 + 4u^3.
+inline dd dd_mul_fp_alg7(const dd& x, double y) noexcept {
+    double cl1;
+    const double ch = two_prod(x.hi, y, cl1);
+    const double cl2 = x.lo * y;
+    double tl1;
+    const double th = fast_two_sum(ch, cl2, tl1);
+    const double tl2 = tl1 + cl1;
+    double zl;
+    const double zh = fast_two_sum(th, tl2, zl);
+    return dd::raw(zh, zl);
+}
+
+// dd * double. FMA build: JMP 2017 Alg. 9 (DWTimesFP3), 2 fma + 1 mul + 3 add; otherwise Alg. 7.
+inline dd dd_mul_fp(const dd& x, double y) noexcept {
+#if defined(LOSCHMIDT_NO_FMA)
+    return dd_mul_fp_alg7(x, y);
+#else
+    double cl1;
+    const double ch = two_prod(x.hi, y, cl1);
+    const double cl3 = std::fma(x.lo, y, cl1);  // lo*y and the product error with one rounding
+    double zl;
+    const double zh = fast_two_sum(ch, cl3, zl);
+    return dd::raw(zh, zl);
+#endif
+}
+
+// dd * dd. FMA build: JMP 2017 Alg. 12 (DWTimesDW3): the cross terms are accumulated into the
+// product error with fma, smallest (lo*lo) first. Otherwise Alg. 10 (DWTimesDW1).
+inline dd dd_mul(const dd& x, const dd& y) noexcept {
+    double cl1;
+    const double ch = two_prod(x.hi, y.hi, cl1);
+#if defined(LOSCHMIDT_NO_FMA)
+    const double tl1 = x.hi * y.lo;
+    const double tl2 = x.lo * y.hi;
+    const double cl2 = tl1 + tl2;
+#else
+    const double tl0 = x.lo * y.lo;
+    const double tl1 = std::fma(x.hi, y.lo, tl0);
+    const double cl2 = std::fma(x.lo, y.hi, tl1);
+#endif
+    const double cl3 = cl1 + cl2;
+    double zl;
+    const double zh = fast_two_sum(ch, cl3, zl);
+    return dd::raw(zh, zl);
+}
+
+// dd / double, JMP 2017 Alg. 13 (DWDivFP1). The remainder x.hi - th*y of a correctly rounded
+// quotient is representable, so computing it with one fma or with TwoProd + two exact
+// subtractions gives the same bits: FMA and no-FMA builds agree here.
+inline dd dd_div_fp(const dd& x, double y) noexcept {
+    const double th = x.hi / y;
+#if defined(LOSCHMIDT_NO_FMA)
+    double pl;
+    const double ph = two_prod(th, y, pl);
+    const double dh = x.hi - ph;  // exact (Sterbenz)
+    const double dt = dh - pl;    // exact (representable remainder)
+#else
+    const double dt = std::fma(-th, y, x.hi);  // exact remainder
+#endif
+    const double d = dt + x.lo;
+    const double tl = d / y;
+    double zl;
+    const double zh = fast_two_sum(th, tl, zl);
+    return dd::raw(zh, zl);
+}
+
+// dd / dd, JMP 2017 Alg. 17 (DWDivDW2): first quotient digit th = x.hi / y.hi, the remainder
+// x - th*y formed in double-word (the product by Alg. 7, the leading subtraction exact by
+// Sterbenz), second digit = remainder / y.hi. Two divisions, no branch.
+inline dd dd_div(const dd& x, const dd& y) noexcept {
+    const double th = x.hi / y.hi;
+    const dd r = dd_mul_fp_alg7(y, th);  // Alg. 17 is proven with Alg. 7 for this product
+    const double pih = x.hi - r.hi;       // exact: r.hi is within a few ulps of x.hi
+    const double dl = x.lo - r.lo;
+    const double d = pih + dl;
+    const double tl = d / y.hi;
+    double zl;
+    const double zh = fast_two_sum(th, tl, zl);
+    return dd::raw(zh, zl);
+}
+
+}  // namespace detail
+
+// ---- arithmetic operators ------------------------------------------------------------------
+
+inline dd operator-(const dd& a) noexcept { return dd::raw(-a.hi, -a.lo); }
+inline dd operator+(const dd& a) noexcept { return a; }
+
+inline dd operator+(const dd& a, const dd& b) noexcept { return detail::dd_add(a, b); }
+inline dd operator-(const dd& a, const dd& b) noexcept { return detail::dd_add(a, -b); }
+inline dd operator*(const dd& a, const dd& b) noexcept { return detail::dd_mul(a, b); }
+inline dd operator/(const dd& a, const dd& b) noexcept { return detail::dd_div(a, b); }
+
+inline dd operator+(const dd& a, double b) noexcept { return detail::dd_add_fp(a, b); }
+inline dd operator+(double a, const dd& b) noexcept { return detail::dd_add_fp(b, a); }
+inline dd operator-(const dd& a, double b) noexcept { return detail::dd_add_fp(a, -b); }
+inline dd operator-(double a, const dd& b) noexcept { return detail::dd_add_fp(-b, a); }
+inline dd operator*(const dd& a, double b) noexcept { return detail::dd_mul_fp(a, b); }
+inline dd operator*(double a, const dd& b) noexcept { return detail::dd_mul_fp(b, a); }
+inline dd operator/(const dd& a, double b) noexcept { return detail::dd_div_fp(a, b); }
+inline dd operator/(double a, const dd& b) noexcept { return detail::dd_div(dd(a), b); }
+
+inline dd& dd::operator+=(const dd& b) noexcept { return *this = *this + b; }
+inline dd& dd::operator-=(const dd& b) noexcept { return *this = *this - b; }
+inline dd& dd::operator*=(const dd& b) noexcept { return *this = *this * b; }
+inline dd& dd::operator/=(const dd& b) noexcept { return *this = *this / b; }
+inline dd& dd::operator+=(double b) noexcept { return *this = *this + b; }
+inline dd& dd::operator-=(double b) noexcept { return *this = *this - b; }
+inline dd& dd::operator*=(double b) noexcept { return *this = *this * b; }
+inline dd& dd::operator/=(double b) noexcept { return *this = *this / b; }
+
+// ---- comparisons -------------------------------------------------------------------------
+// For normalized values hi = RN(value), and the rounding intervals of distinct doubles are
+// disjoint, so comparing (hi, lo) lexicographically orders the values exactly.
+
+inline bool operator==(const dd& a, const dd& b) noexcept { return a.hi == b.hi && a.lo == b.lo; }
+inline bool operator!=(const dd& a, const dd& b) noexcept { return !(a == b); }
+inline bool operator<(const dd& a, const dd& b) noexcept {
+    return a.hi < b.hi || (a.hi == b.hi && a.lo < b.lo);
+}
+inline bool operator>(const dd& a, const dd& b) noexcept { return b < a; }
+inline bool operator<=(const dd& a, const dd& b) noexcept {
+    return a.hi < b.hi || (a.hi == b.hi && a.lo <= b.lo);
+}
+inline bool operator>=(const dd& a, const dd& b) noexcept { return b <= a; }
+
+inline bool operator==(const dd& a, double b) noexcept { return a.hi == b && a.lo == 0.0; }
+inline bool operator!=(const dd& a, double b) noexcept { return !(a == b); }
+inline bool operator<(const dd& a, double b) noexcept {
+    return a.hi < b || (a.hi == b && a.lo < 0.0);
+}
+inline bool operator>(const dd& a, double b) noexcept {
+    return a.hi > b || (a.hi == b && a.lo > 0.0);
+}
+inline bool operator<=(const dd& a, double b) noexcept {
+    return a.hi < b || (a.hi == b && a.lo <= 0.0);
+}
+inline bool operator>=(const dd& a, double b) noexcept {
+    return a.hi > b || (a.hi == b && a.lo >= 0.0);
+}
+inline bool operator==(double a, const dd& b) noexcept { return b == a; }
+inline bool operator!=(double a, const dd& b) noexcept { return b != a; }
+inline bool operator<(double a, const dd& b) noexcept { return b > a; }
+inline bool operator>(double a, const dd& b) noexcept { return b < a; }
+inline bool operator<=(double a, const dd& b) noexcept { return b >= a; }
+inline bool operator>=(double a, const dd& b) noexcept { return b <= a; }
+
+// ---- functions ---------------------------------------------------------------------------
+
+inline double to_double(const dd& a) noexcept { return a.hi; }  // hi is RN(value)
+
+// Multiplying both limbs by +-1 is exact and compiles without a branch.
+inline dd abs(const dd& a) noexcept {
+    const double s = std::copysign(1.0, a.hi);
+    return dd::raw(a.hi * s, a.lo * s);
+}
+
+inline bool isfinite(const dd& a) noexcept { return std::isfinite(a.hi) && std::isfinite(a.lo); }
+inline bool isnan(const dd& a) noexcept { return std::isnan(a.hi) || std::isnan(a.lo); }
+
+// Exact scaling by 2^n (unless a limb overflows or becomes subnormal).
+inline dd ldexp(const dd& a, int n) noexcept {
+    return dd::raw(std::ldexp(a.hi, n), std::ldexp(a.lo, n));
+}
+
+// sqrt(hi + lo) = s * sqrt(1 + rho/s^2) ~ s + rho/(2s), with s = RN(sqrt(hi)) and
+// rho = (hi - s^2) + lo. hi - s^2 is exactly representable for a correctly rounded square root,
+// so fma (or TwoProd) gives it exactly and both builds produce the same bits.
+inline dd sqrt(const dd& a) noexcept {
+    if (!(a.hi > 0.0 && a.hi < std::numeric_limits<double>::infinity())) {
+        if (a.hi == 0.0 || a.hi > 0.0) return a;  // +-0 and +inf as IEEE sqrt does
+        return dd(std::numeric_limits<double>::quiet_NaN());  // negative or NaN
+    }
+    const double s = std::sqrt(a.hi);
+#if defined(LOSCHMIDT_NO_FMA)
+    double pl;
+    const double ph = two_prod(s, s, pl);
+    const double rem = (a.hi - ph) - pl;  // both steps exact
+#else
+    const double rem = std::fma(-s, s, a.hi);  // exact
+#endif
+    const double rho = rem + a.lo;
+    const double t = rho / (2.0 * s);
+    double zl;
+    const double zh = fast_two_sum(s, t, zl);
+    return dd::raw(zh, zl);
+}
+
+}  // namespace loschmidt

@@ -1,0 +1,41 @@
+"""loschmidt: high-precision few-body gravitational dynamics.
+
+Integrate chaotic few-body systems forward and backward in time in double, compensated double,
+double-double and quad-double precision, and tell converged, reversible solutions from round-off noise.
+"""
+
+from __future__ import annotations
+
+from . import _core
+from . import ics, orbits, precision, units
+from .ensemble import Ensemble
+from .integrate import DEFAULT_TOLERANCE, METHODS, Result, Trajectory, integrate, phase_distance, phase_distances
+from .precision import PRECISIONS
+from .status import STATUSES
+from .system import System
+
+try:
+    from importlib.metadata import PackageNotFoundError, version as _version
+
+    __version__ = _version("loschmidt")
+except PackageNotFoundError:  # pragma: no cover - running from a source tree
+    __version__ = getattr(_core, "__version__", "0+unknown")
+
+__all__ = [
+    "__version__",
+    "PRECISIONS",
+    "METHODS",
+    "STATUSES",
+    "DEFAULT_TOLERANCE",
+    "System",
+    "Result",
+    "Trajectory",
+    "integrate",
+    "phase_distance",
+    "phase_distances",
+    "precision",
+    "units",
+    "ics",
+    "orbits",
+    "Ensemble",
+]
