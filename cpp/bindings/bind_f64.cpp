@@ -1,0 +1,11 @@
+// Instantiates the f64 registrations (one translation unit per scalar keeps builds parallel).
+#include "register_arith.hpp"
+#include "register_engine.hpp"
+
+namespace loschmidt::bind {
+void register_f64(py::module_& m) {
+  register_arith<double>(m, "f64");
+  register_engine<double, false>(m, "f64");
+  register_engine<double, true>(m, "f64c");
+}
+}  // namespace loschmidt::bind

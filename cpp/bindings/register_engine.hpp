@@ -1,0 +1,117 @@
+// Integration and diagnostics entry points, one registration per (scalar, compensation) pair.
+// The Python layer (loschmidt.integrate) validates everything first; this layer only converts limbs,
+// releases the GIL, runs the engine and hands back limbs, the status and the statistics.
+#pragma once
+#include <string>
+#include <vector>
+
+#include "interrupt.hpp"
+#include "limbs.hpp"
+#include "loschmidt/methods/gbs.hpp"
+#include "loschmidt/methods/status.hpp"
+#include "loschmidt/nbody/diagnostics.hpp"
+#include "loschmidt/nbody/state.hpp"
+#include "loschmidt/scalar/scalar.hpp"
+
+namespace loschmidt::bind {
+
+template <class T>
+State<T> read_state(const limb_array& masses, const limb_array& positions, const limb_array& velocities) {
+  constexpr int k = scalar_traits<T>::limbs;
+  if (masses.ndim() != 2 || masses.shape(1) != k) throw py::value_error("masses: expected an (N, k) limb array");
+  const py::ssize_t n = masses.shape(0);
+  State<T> s;
+  s.n = static_cast<int>(n);
+  s.m = read_limbs<T>(masses, {n}, "masses");
+  s.x = read_limbs<T>(positions, {n, 3}, "positions");
+  s.v = read_limbs<T>(velocities, {n, 3}, "velocities");
+  return s;
+}
+
+template <class T>
+py::dict diagnostics_dict(const State<T>& s) {
+  py::dict d;
+  const auto p = linear_momentum(s);
+  const auto l = angular_momentum(s);
+  d["energy"] = scalar_limbs(energy(s));
+  d["kinetic"] = scalar_limbs(kinetic_energy(s));
+  d["potential"] = scalar_limbs(potential_energy(s));
+  d["momentum"] = write_limbs<T>(p.data(), {3});
+  d["angular_momentum"] = write_limbs<T>(l.data(), {3});
+  return d;
+}
+
+template <class T, bool Compensated>
+void register_engine(py::module_& m, const std::string& suffix) {
+  m.def(("diagnostics_" + suffix).c_str(),
+        [](const limb_array& masses, const limb_array& positions, const limb_array& velocities) {
+          const State<T> s = read_state<T>(masses, positions, velocities);
+          return diagnostics_dict(s);
+        },
+        py::arg("masses"), py::arg("positions"), py::arg("velocities"));
+
+  m.def(("integrate_" + suffix).c_str(),
+        [](const std::string& method, const limb_array& masses, const limb_array& positions,
+           const limb_array& velocities, const limb_array& t_end, const limb_array& times, double rtol,
+           double atol, long long max_steps, double max_wall_time, int max_order, double initial_step) {
+          State<T> s = read_state<T>(masses, positions, velocities);
+          const std::vector<T> tend = read_limbs<T>(t_end, {}, "t");
+          if (tend.size() != 1) throw py::value_error("t: expected one value");
+          const std::vector<T> outs = read_limbs<T>(times, {}, "times");
+          if (method != "gbs") throw py::value_error("method: unknown method '" + method + "'");
+
+          const py::ssize_t n = s.n;
+          std::vector<T> traj_t, traj_x, traj_v;
+          traj_t.reserve(outs.size());
+          traj_x.reserve(outs.size() * 3 * n);
+          traj_v.reserve(outs.size() * 3 * n);
+          auto on_output = [&](int, const T& tt, const State<T>& st) {
+            traj_t.push_back(tt);
+            traj_x.insert(traj_x.end(), st.x.begin(), st.x.end());
+            traj_v.insert(traj_v.end(), st.v.begin(), st.v.end());
+          };
+
+          interrupt_poll poll;
+          Options opt;
+          opt.rtol = rtol;
+          opt.atol = atol;
+          opt.max_steps = max_steps;
+          opt.max_wall_time = max_wall_time;
+          opt.max_order = max_order;
+          opt.initial_step = initial_step;
+          opt.poll = [&poll]() { return poll(); };
+
+          T t = T(0);
+          const T e0 = energy(s);
+          Stats st;
+          {
+            py::gil_scoped_release nogil;
+            st = integrate_gbs<T, Compensated>(s, t, tend[0], outs, on_output, opt);
+          }
+          if (poll.signalled()) throw py::error_already_set();
+          const T e1 = energy(s);
+          using std::abs;
+          const T de = e0 == T(0) ? abs(e1 - e0) : abs((e1 - e0) / e0);
+
+          py::dict d;
+          d["positions"] = write_limbs<T>(s.x, {n, 3});
+          d["velocities"] = write_limbs<T>(s.v, {n, 3});
+          d["t"] = scalar_limbs(t);
+          d["status"] = static_cast<int>(st.status);
+          d["steps"] = st.steps;
+          d["rejected"] = st.rejected;
+          d["evaluations"] = st.evaluations;
+          d["wall_time"] = st.wall_time;
+          d["energy_error"] = to_double(de);
+          const auto count = static_cast<py::ssize_t>(traj_t.size());
+          d["trajectory_t"] = write_limbs<T>(traj_t, {count});
+          d["trajectory_positions"] = write_limbs<T>(traj_x, {count, n, 3});
+          d["trajectory_velocities"] = write_limbs<T>(traj_v, {count, n, 3});
+          return d;
+        },
+        py::arg("method"), py::arg("masses"), py::arg("positions"), py::arg("velocities"), py::arg("t_end"),
+        py::arg("times"), py::arg("rtol"), py::arg("atol"), py::arg("max_steps"), py::arg("max_wall_time"),
+        py::arg("max_order"), py::arg("initial_step"));
+}
+
+}  // namespace loschmidt::bind

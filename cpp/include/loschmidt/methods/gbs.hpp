@@ -1,0 +1,403 @@
+// The Gragg-Bulirsch-Stoer integrator for the Newtonian N-body problem x'' = a(x):
+//   - NewtonianStormerSubstep: the symmetric substep, Stormer's form of Gragg's midpoint rule for
+//     second-order equations (kick-drift-kick leapfrog with n substeps over H; HNW I, II.14),
+//     accumulating the increments (dx, dv) directly;
+//   - ExtrapolationStepper + OrderStepController (step_control.hpp): tableau and order control;
+//   - integrate_gbs: the driver. It lands exactly on every output time and on t_end by shortening
+//     the step (no interpolation), integrates backward when t_end < t, and enforces the budgets
+//     (max_steps, max_wall_time, step floor, polling for interrupts).
+// Re-entrant: no globals; all storage is allocated before the loop.
+#pragma once
+
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <stdexcept>
+#include <type_traits>
+#include <utility>
+#include <vector>
+
+#include <loschmidt/methods/extrapolation.hpp>
+#include <loschmidt/methods/options.hpp>
+#include <loschmidt/methods/status.hpp>
+#include <loschmidt/methods/step_control.hpp>
+#include <loschmidt/nbody/forces.hpp>
+#include <loschmidt/nbody/state.hpp>
+#include <loschmidt/scalar/compensated.hpp>
+#include <loschmidt/scalar/traits.hpp>
+
+namespace loschmidt {
+
+// Stormer/leapfrog substep on the flat phase-space vector y = (x[Dn], v[Dn]), D = 3 (or 2 for a
+// planar system, see integrate_gbs).
+// With h = H/n:  v_{1/2} = v0 + h/2 a(x0);  x_{i+1} = x_i + h v_{i+1/2};
+//                v_{i+3/2} = v_{i+1/2} + h a(x_{i+1});  ...;  v_n = v_{n-1/2} + h/2 a(x_n).
+// Symmetric, so its error expands in even powers of h for every n. It costs n force evaluations
+// plus a(x0), which begin() computes once per macro step and all rows share.
+template <class T, int D = 3>
+class NewtonianStormerSubstep {
+ public:
+  void setup(int n, const T* m) {
+    n_ = n;
+    m_ = m;
+    const std::size_t k = D * static_cast<std::size_t>(n);
+    a0_.assign(k, T(0));
+    a_.assign(k, T(0));
+    xt_.assign(k, T(0));
+    pairs_.setup(n);
+  }
+
+  bool begin(const T* y0) {
+    using std::isfinite;
+    force(y0, a0_.data());
+    ++evaluations;
+    for (const T& q : a0_)
+      if (!isfinite(q)) return false;
+    return true;
+  }
+
+  const T* start_acceleration() const { return a0_.data(); }
+
+  // Acceleration at arbitrary positions (used by the automatic first step).
+  void evaluate(const T* x, T* a) {
+    force(x, a);
+    ++evaluations;
+  }
+
+  void increment(const T* y0, const T& H, int nsub, T* dy) {
+    const int k = D * n_;
+    const T* x0 = y0;
+    const T* v0 = y0 + k;
+    T* dx = dy;      // x_i - x0
+    T* dv = dy + k;  // v_{i-1/2} - v0 inside the loop, v_n - v0 at the end
+    T* xt = xt_.data();
+    T* a = a_.data();
+    const T* a0 = a0_.data();
+    const T h = H / T(nsub);
+    const T h2 = H / T(2 * nsub);
+    for (int i = 0; i < k; ++i) {
+      dv[i] = h2 * a0[i];
+      dx[i] = h * (v0[i] + dv[i]);
+    }
+    for (int s = 1; s < nsub; ++s) {
+      for (int i = 0; i < k; ++i) xt[i] = x0[i] + dx[i];
+      force(xt, a);
+      for (int i = 0; i < k; ++i) {
+        dv[i] += h * a[i];
+        dx[i] += h * (v0[i] + dv[i]);
+      }
+    }
+    for (int i = 0; i < k; ++i) xt[i] = x0[i] + dx[i];
+    force(xt, a);
+    for (int i = 0; i < k; ++i) dv[i] += h2 * a[i];
+    evaluations += nsub;
+  }
+
+  long long evaluations = 0;
+
+ private:
+  // Single pass in double (fastest there); three passes in extended precision, where the
+  // independent sqrt/division chains of the pairs overlap (same bits either way).
+  void force(const T* x, T* a) {
+    if constexpr (std::is_same_v<T, double>) accelerations_in<D>(n_, m_, x, a);
+    else accelerations_in<D>(n_, m_, x, a, pairs_);
+  }
+  int n_ = 0;
+  const T* m_ = nullptr;
+  std::vector<T> a0_, a_, xt_;
+  PairWorkspace<T> pairs_;
+};
+
+namespace detail {
+
+// Automatic first step (HNW I, II.4, adapted): from the sizes of y0, f(y0) and of the change of f
+// over a small trial step, the step whose local error of order p would be about the tolerance.
+// Components with zero scale are skipped. Returns a magnitude.
+template <class T, int D>
+double initial_step_size(NewtonianStormerSubstep<T, D>& sub, const std::vector<T>& y, double rtol,
+                         double atol, int order, double span, int norm_count) {
+  const std::size_t k = y.size() / 2;
+  const T* a0 = sub.start_acceleration();
+  double d0 = 0, d1 = 0;
+  std::vector<double> sc(2 * k);
+  for (std::size_t i = 0; i < 2 * k; ++i) {
+    sc[i] = atol + rtol * std::fabs(to_double(y[i]));
+    if (sc[i] > 0) {
+      const double f = (i < k) ? to_double(y[k + i]) : to_double(a0[i - k]);
+      d0 += (to_double(y[i]) / sc[i]) * (to_double(y[i]) / sc[i]);
+      d1 += (f / sc[i]) * (f / sc[i]);
+    }
+  }
+  d0 = std::sqrt(d0 / norm_count);
+  d1 = std::sqrt(d1 / norm_count);
+  const bool guessed = (d0 < 1e-5 || d1 < 1e-5);
+  double h0 = guessed ? 1e-6 * span : 0.01 * d0 / d1;
+  h0 = std::min(h0, span);
+  // Trial point y1 = y0 + h0 f(y0) (positive direction; only sizes matter here).
+  std::vector<T> x1(k), a1(k);
+  const T th0 = T(h0);
+  for (std::size_t i = 0; i < k; ++i) x1[i] = y[i] + th0 * y[k + i];
+  sub.evaluate(x1.data(), a1.data());
+  double d2 = 0;
+  for (std::size_t i = 0; i < 2 * k; ++i) {
+    if (!(sc[i] > 0)) continue;
+    const double df = (i < k) ? h0 * to_double(a0[i]) : to_double(a1[i - k] - a0[i - k]);
+    d2 += (df / sc[i]) * (df / sc[i]);
+  }
+  d2 = std::sqrt(d2 / norm_count) / h0;
+  const double dmax = std::max(d1, d2);
+  double h1;
+  if (!(dmax > 1e-15) || !std::isfinite(dmax))
+    h1 = std::max(1e-6 * span, h0 * 1e-3);
+  else
+    h1 = std::pow(0.01 / dmax, 1.0 / (order + 1));
+  double h = guessed ? h1 : std::min(100 * h0, h1);
+  if (!(h > 0) || !std::isfinite(h)) h = 1e-6 * span;
+  return std::min(h, span);
+}
+
+}  // namespace detail
+
+namespace detail {
+
+// The driver proper, for D = 3 or (planar systems) D = 2; arguments already validated.
+template <int D, class T, bool Compensated, class Observer>
+Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_times,
+              Observer&& on_output, const Options& opt, const StepControlTuning& tune, int rows,
+              std::chrono::steady_clock::time_point clock_start) {
+  using clock = std::chrono::steady_clock;
+  using std::abs;
+  using std::isfinite;
+  Stats st;
+  auto finish = [&](Status status) {
+    st.status = status;
+    st.wall_time = std::chrono::duration<double>(clock::now() - clock_start).count();
+    return st;
+  };
+  const bool forward = t_end > t;
+
+  // ---- setup (all allocation happens here)
+  // y = (x, v) with D coordinates per body; for D = 2 the z parts (exactly zero) are left out.
+  const int n = s.n;
+  const int kd = D * n;
+  const int dim = 2 * kd;
+  const int norm_count = 6 * n;  // the error norm always averages over the full 6n components
+  std::vector<T> y(static_cast<std::size_t>(dim));
+  std::vector<T> comp(Compensated ? static_cast<std::size_t>(dim) : 0, T(0));
+  for (int i = 0; i < n; ++i)
+    for (int c = 0; c < D; ++c) {
+      y[static_cast<std::size_t>(D * i + c)] = s.x[static_cast<std::size_t>(3 * i + c)];
+      y[static_cast<std::size_t>(kd + D * i + c)] = s.v[static_cast<std::size_t>(3 * i + c)];
+    }
+  auto store = [&]() {
+    for (int i = 0; i < n; ++i)
+      for (int c = 0; c < D; ++c) {
+        s.x[static_cast<std::size_t>(3 * i + c)] = y[static_cast<std::size_t>(D * i + c)];
+        s.v[static_cast<std::size_t>(3 * i + c)] = y[static_cast<std::size_t>(kd + D * i + c)];
+      }
+  };
+
+  NewtonianStormerSubstep<T, D> sub;
+  sub.setup(n, s.m.data());
+  ExtrapolationStepper<T, NewtonianStormerSubstep<T, D>> stepper;
+  stepper.setup(&sub, dim, opt.sequence, rows, opt.rtol, opt.atol, tune, norm_count);
+  OrderStepController& ctrl = stepper.controller();
+
+  const double dir = forward ? 1.0 : -1.0;
+  const double span = std::fabs(to_double(t_end - t));
+  const double frac = opt.min_step_fraction > 0 ? opt.min_step_fraction : 16.0 * scalar_traits<T>::epsilon();
+  // Step floor: frac * max(|t|, |t_start|, |H_0|). Relative to |t| because below that t + H no
+  // longer moves t; |t_start| and the first step's size |H_0| (the problem's own time scale) give
+  // it a scale near t = 0. The span is deliberately not used: a long run must not forbid the
+  // short steps of an early close encounter.
+  double floor_scale = std::fabs(to_double(t));
+  const double wall_limit = opt.max_wall_time;
+  const auto poll_interval = std::chrono::milliseconds(2);
+  auto last_poll = clock_start;
+
+  if (!stepper.start_at(y.data())) {
+    st.evaluations = sub.evaluations;
+    return finish(Status::nonfinite);
+  }
+  {
+    double h = opt.initial_step > 0
+                   ? opt.initial_step
+                   : initial_step_size(sub, y, opt.rtol, opt.atol, 2 * ctrl.target(), span, norm_count);
+    h = std::min(h, span);
+    ctrl.set_proposal(h);
+    floor_scale = std::max(floor_scale, h);
+  }
+
+  T tc = T(0);  // compensation of t (Compensated only)
+  std::size_t next_out = 0;
+  const std::size_t n_out = output_times.size();
+  bool first = true;
+  long long attempts = 0;
+  Status status = Status::success;
+
+  while (true) {
+    const T& target = next_out < n_out ? output_times[next_out] : t_end;
+    T remaining = target - t;
+    if (Compensated) remaining -= tc;
+    const double hmag = ctrl.proposal();
+    T H;
+    bool landing;
+    if ((forward && !(remaining > T(0))) || (!forward && !(remaining < T(0)))) {
+      // Compensated time already at (or a rounding past) the target: land without a step.
+      H = T(0);
+      landing = true;
+    } else if (!(hmag > 0) || !std::isfinite(hmag)) {
+      status = Status::step_underflow;  // cannot happen with a positive floor; never loop on H = 0
+      break;
+    } else {
+      landing = !(T(hmag) < abs(remaining));
+      H = landing ? remaining : T(dir * hmag);
+    }
+
+    if (H != T(0)) {
+      // ---- budgets, checked before each attempt
+      if (!landing && !(hmag >= frac * std::max(std::fabs(to_double(t)), floor_scale))) {
+        status = Status::step_underflow;
+        break;
+      }
+      if (attempts >= opt.max_steps) {
+        status = Status::max_steps;
+        break;
+      }
+      if (wall_limit > 0 || opt.poll) {
+        const auto now = clock::now();
+        if (wall_limit > 0 && std::chrono::duration<double>(now - clock_start).count() >= wall_limit) {
+          status = Status::max_wall_time;
+          break;
+        }
+        if (opt.poll && now - last_poll >= poll_interval) {
+          last_poll = now;
+          if (opt.poll()) {
+            status = Status::interrupted;
+            break;
+          }
+        }
+      }
+      ++attempts;
+      const int k_before = ctrl.target();
+#ifdef LOSCHMIDT_TRACE
+      std::fprintf(stderr, "t=%.17g H=%.3e k=%d\n", to_double(t), to_double(H), ctrl.target());
+#endif
+      if (!stepper.attempt(H, first || landing)) {
+        ++st.rejected;
+        continue;
+      }
+      // ---- accepted: y += dy, t += H
+      const T* dy = stepper.increment();
+      if (Compensated) {
+        for (int i = 0; i < dim; ++i) compensated_add(y[static_cast<std::size_t>(i)], comp[static_cast<std::size_t>(i)], dy[i]);
+      } else {
+        for (int i = 0; i < dim; ++i) y[static_cast<std::size_t>(i)] += dy[i];
+      }
+      ++st.steps;
+      first = false;
+      if (landing) {
+        // A step shortened to land says little about the natural step and order: keep them.
+        const double hused = std::fabs(to_double(H));
+        if (hused < hmag) {
+          ctrl.set_proposal(std::max(ctrl.proposal(), hmag));
+          ctrl.set_target(std::max(ctrl.target(), k_before));
+        }
+      } else {
+        if (Compensated) compensated_add(t, tc, H);
+        else t += H;
+      }
+      if (!stepper.start_at(y.data())) {
+        if (landing) t = target;
+        status = Status::nonfinite;
+        break;
+      }
+    }
+    if (landing) {
+      t = target;
+      tc = T(0);
+      while (next_out < n_out && output_times[next_out] == t) {
+        store();
+        on_output(static_cast<int>(next_out), static_cast<const T&>(t), static_cast<const State<T>&>(s));
+        ++next_out;
+      }
+      if (t == t_end) break;
+    }
+  }
+  store();
+  st.evaluations = sub.evaluations;
+  return finish(status);
+}
+
+}  // namespace detail
+
+// Integrate s from t to t_end (t is updated; it equals t_end exactly on success). on_output(index,
+// t, s) is called on landing exactly on output_times[index]; output_times must be sorted in the
+// direction of integration and lie in (t, t_end]. Compensated = true carries Kahan-Babuska-
+// Neumaier compensation for y += dy and t += H (precision "f64c"), so round-off does not
+// random-walk over many steps. Invalid arguments throw std::invalid_argument before any work;
+// every other way of stopping is reported in Stats::status (s and t then hold the last accepted
+// state).
+template <class T, bool Compensated = false, class Observer>
+Stats integrate_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_times,
+                    Observer&& on_output, const Options& opt, const StepControlTuning& tune = {}) {
+  using clock = std::chrono::steady_clock;
+  using std::isfinite;
+  const auto clock_start = clock::now();
+  Stats st;
+  auto finish = [&](Status status) {
+    st.status = status;
+    st.wall_time = std::chrono::duration<double>(clock::now() - clock_start).count();
+    return st;
+  };
+
+  // ---- validation (before any work)
+  s.require_consistent();
+  if (s.n < 1) throw std::invalid_argument("integrate_gbs: need at least one body");
+  if (!isfinite(t) || !isfinite(t_end)) throw std::invalid_argument("integrate_gbs: t and t_end must be finite");
+  if (!(opt.rtol >= 0) || !(opt.atol >= 0) || !(opt.rtol > 0 || opt.atol > 0))
+    throw std::invalid_argument("integrate_gbs: rtol and atol must be >= 0 and not both zero");
+  if (opt.max_steps < 1) throw std::invalid_argument("integrate_gbs: max_steps must be >= 1");
+  if (!(opt.max_wall_time >= 0)) throw std::invalid_argument("integrate_gbs: max_wall_time must be >= 0");
+  if (!(opt.initial_step >= 0) || !std::isfinite(opt.initial_step))
+    throw std::invalid_argument("integrate_gbs: initial_step must be finite and >= 0");
+  if (!(opt.min_step_fraction >= 0)) throw std::invalid_argument("integrate_gbs: min_step_fraction must be >= 0");
+  const int rows = opt.max_order > 0 ? opt.max_order : scalar_traits<T>::default_max_order();
+  if (rows < 3 || rows > sequence_max_rows(opt.sequence))
+    throw std::invalid_argument("integrate_gbs: max_order out of range for the step sequence");
+  {
+    const bool forward = t_end > t;
+    T prev = t;
+    for (const T& q : output_times) {
+      if (!isfinite(q)) throw std::invalid_argument("integrate_gbs: output_times must be finite");
+      const bool ok = forward ? (q > prev || (q == prev && q != t)) && q <= t_end
+                              : (q < prev || (q == prev && q != t)) && q >= t_end;
+      if (!ok)
+        throw std::invalid_argument(
+            "integrate_gbs: output_times must be sorted in the direction of integration and lie in (t, t_end]");
+      prev = q;
+    }
+  }
+  if (t == t_end) return finish(Status::success);
+  if (!s.finite()) return finish(Status::nonfinite);
+
+  // Planar fast path: with every z coordinate and z velocity exactly zero they stay exactly zero
+  // (the z accelerations are exact zeros), so the system is integrated in two dimensions, with the
+  // same bits as the three-dimensional path and about a third less work.
+  bool planar = true;
+  for (int i = 0; i < s.n && planar; ++i)
+    planar = (s.x[static_cast<std::size_t>(3 * i + 2)] == T(0)) && (s.v[static_cast<std::size_t>(3 * i + 2)] == T(0));
+  if (planar)
+    return detail::run_gbs<2, T, Compensated>(s, t, t_end, output_times, on_output, opt, tune, rows, clock_start);
+  return detail::run_gbs<3, T, Compensated>(s, t, t_end, output_times, on_output, opt, tune, rows, clock_start);
+}
+
+// Without output times.
+template <class T, bool Compensated = false>
+Stats integrate_gbs(State<T>& s, T& t, const T& t_end, const Options& opt,
+                    const StepControlTuning& tune = {}) {
+  const std::vector<T> none;
+  return integrate_gbs<T, Compensated>(s, t, t_end, none, [](int, const T&, const State<T>&) {}, opt, tune);
+}
+
+}  // namespace loschmidt

@@ -1,0 +1,54 @@
+// What the caller asks of an integration (tolerances, budgets, order limit, interrupt polling) and
+// what it gets back besides the state (status and counters). Plain data, shared by every method.
+#pragma once
+
+#include <functional>
+
+#include <loschmidt/methods/status.hpp>
+
+namespace loschmidt {
+
+// Step-number sequence n_1, n_2, ... of the extrapolation tableau (substeps per macro step in row j).
+enum class StepSequence : int {
+  harmonic = 0,  // 2, 4, 6, 8, ...: cheapest work per order; the default
+  bulirsch = 1,  // 2, 4, 6, 8, 12, 16, 24, 32, ...: n_j = 2 n_{j-2}
+  romberg = 2,   // 2, 4, 8, 16, ...: doubling; expensive, mainly for comparison
+  unit = 3       // 1, 2, 3, 4, ...: legal because the Stormer/leapfrog substep is a symmetric
+                 // one-step method (even h-expansion for every n, not only even n)
+};
+
+struct Options {
+  // Scaled error norm: sc_i = atol + rtol * max(|y0_i|, |y1_i|) over positions and velocities;
+  // a step is accepted when the RMS of (error_i / sc_i) is at most 1. Components whose scale and
+  // error are both exactly zero (for instance z in a planar problem with atol = 0) are skipped.
+  double rtol = 1e-12;
+  double atol = 0.0;
+  // Budget of attempted (accepted + rejected) macro steps.
+  long long max_steps = 10000000;
+  // Wall-clock budget in seconds; 0 means none.
+  double max_wall_time = 0.0;
+  // Largest number of rows of the extrapolation tableau (the order reached is 2 * rows); 0 means
+  // scalar_traits<T>::default_max_order(). At least 3.
+  int max_order = 0;
+  // Magnitude of the first step; 0 means chosen automatically. The sign follows the direction.
+  double initial_step = 0.0;
+  // Step floor: a step whose size falls below min_step_fraction * max(|t|, |t_start|, |H_0|)
+  // (H_0: the first step) ends the run with Status::step_underflow; steps shortened to land on a
+  // requested time are exempt. 0 means 16 * scalar_traits<T>::epsilon().
+  double min_step_fraction = 0.0;
+  // Called every few milliseconds (at a step boundary); returning true stops the run with
+  // Status::interrupted. Empty means never called.
+  std::function<bool()> poll;
+  // Substep sequence of the extrapolation tableau.
+  StepSequence sequence = StepSequence::harmonic;
+};
+
+struct Stats {
+  Status status = Status::success;
+  long long steps = 0;        // accepted macro steps
+  long long rejected = 0;     // rejected macro steps
+  long long evaluations = 0;  // force (right-hand side) evaluations
+  double wall_time = 0.0;     // seconds spent inside the integrator
+};
+
+}  // namespace loschmidt

@@ -1,0 +1,111 @@
+// Conserved quantities and distances of an N-body state, in the working precision T with
+// compensated (Kahan-Babuska-Neumaier) sums, so that the diagnostics' own round-off stays far below
+// the integration error they are used to judge. G = 1.
+#pragma once
+
+#include <array>
+#include <cmath>
+
+#include <loschmidt/nbody/state.hpp>
+#include <loschmidt/scalar/compensated.hpp>
+
+namespace loschmidt {
+
+template <class T>
+inline T kinetic_energy(const State<T>& s) {
+  compensated_sum<T> sum;
+  for (int i = 0; i < s.n; ++i) {
+    const T* v = &s.v[3 * i];
+    sum.add(s.m[i] * (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]));
+  }
+  return sum.value() / T(2);
+}
+
+// -sum_{i<j} m_i m_j / r_ij
+template <class T>
+inline T potential_energy(const State<T>& s) {
+  using std::sqrt;
+  compensated_sum<T> sum;
+  for (int i = 0; i < s.n; ++i)
+    for (int j = i + 1; j < s.n; ++j) {
+      const T dx = s.x[3 * j] - s.x[3 * i];
+      const T dy = s.x[3 * j + 1] - s.x[3 * i + 1];
+      const T dz = s.x[3 * j + 2] - s.x[3 * i + 2];
+      sum.add(-(s.m[i] * s.m[j]) / sqrt(dx * dx + dy * dy + dz * dz));
+    }
+  return sum.value();
+}
+
+// Total energy, kinetic and potential terms summed together in one compensated sum.
+template <class T>
+inline T energy(const State<T>& s) {
+  using std::sqrt;
+  compensated_sum<T> sum;
+  for (int i = 0; i < s.n; ++i) {
+    const T* v = &s.v[3 * i];
+    sum.add(s.m[i] * (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]) / T(2));
+  }
+  for (int i = 0; i < s.n; ++i)
+    for (int j = i + 1; j < s.n; ++j) {
+      const T dx = s.x[3 * j] - s.x[3 * i];
+      const T dy = s.x[3 * j + 1] - s.x[3 * i + 1];
+      const T dz = s.x[3 * j + 2] - s.x[3 * i + 2];
+      sum.add(-(s.m[i] * s.m[j]) / sqrt(dx * dx + dy * dy + dz * dz));
+    }
+  return sum.value();
+}
+
+template <class T>
+inline std::array<T, 3> linear_momentum(const State<T>& s) {
+  std::array<compensated_sum<T>, 3> p;
+  for (int i = 0; i < s.n; ++i)
+    for (int d = 0; d < 3; ++d) p[d].add(s.m[i] * s.v[3 * i + d]);
+  return {p[0].value(), p[1].value(), p[2].value()};
+}
+
+// L = sum m_i x_i cross v_i, about the origin of the caller's frame.
+template <class T>
+inline std::array<T, 3> angular_momentum(const State<T>& s) {
+  std::array<compensated_sum<T>, 3> l;
+  for (int i = 0; i < s.n; ++i) {
+    const T* x = &s.x[3 * i];
+    const T* v = &s.v[3 * i];
+    const T mi = s.m[i];
+    l[0].add(mi * (x[1] * v[2]));
+    l[0].add(-(mi * (x[2] * v[1])));
+    l[1].add(mi * (x[2] * v[0]));
+    l[1].add(-(mi * (x[0] * v[2])));
+    l[2].add(mi * (x[0] * v[1]));
+    l[2].add(-(mi * (x[1] * v[0])));
+  }
+  return {l[0].value(), l[1].value(), l[2].value()};
+}
+
+template <class T>
+inline std::array<T, 3> center_of_mass(const State<T>& s) {
+  std::array<compensated_sum<T>, 3> c;
+  compensated_sum<T> mass;
+  for (int i = 0; i < s.n; ++i) {
+    mass.add(s.m[i]);
+    for (int d = 0; d < 3; ++d) c[d].add(s.m[i] * s.x[3 * i + d]);
+  }
+  const T M = mass.value();
+  return {c[0].value() / M, c[1].value() / M, c[2].value() / M};
+}
+
+// Phase-space distance used for round trips: sqrt(sum_i |x_i - y_i|^2 + |v_i - w_i|^2), N-body
+// units, differences taken in the working precision. Both states must have the same n.
+template <class T>
+inline T phase_space_distance(const State<T>& a, const State<T>& b) {
+  using std::sqrt;
+  compensated_sum<T> sum;
+  for (std::size_t k = 0; k < a.x.size(); ++k) {
+    const T dx = a.x[k] - b.x[k];
+    const T dv = a.v[k] - b.v[k];
+    sum.add(dx * dx);
+    sum.add(dv * dv);
+  }
+  return sqrt(sum.value());
+}
+
+}  // namespace loschmidt
