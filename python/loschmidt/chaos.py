@@ -1,0 +1,485 @@
+"""Reversibility, perturbation growth and converged solutions.
+
+- ``roundtrip``: integrate to t, negate the velocities, integrate t again, negate again, and measure
+  the phase-space distance to the start (a Loschmidt test; METHODS.md section 4).
+- ``amplification``: how much a tiny displacement of one coordinate grows, A(t) = delta(t) / delta(0).
+- ``growth``: the same with renormalisation (Benettin et al. 1980), so the accumulated growth of the
+  most unstable direction can be followed far beyond where two trajectories would separate.
+- ``converge``: runs with decreasing tolerance and rising precision until two successive runs agree
+  to the asked number of digits (the converged-solution approach: Boekholt & Portegies Zwart 2015,
+  Comp. Astrophys. Cosmol. 2:2).
+- ``irreversibility_threshold``: the smallest initial perturbation that the dynamics amplifies to order
+  unity within t, in N-body units and, with a ``units.Scale``, in metres and Planck lengths.
+"""
+
+from __future__ import annotations
+
+import math
+import numbers
+import time as _time
+from dataclasses import dataclass, field
+from typing import Any, Sequence
+
+import numpy as np
+
+from . import precision as _p
+from .integrate import DEFAULT_TOLERANCE, Result, integrate, phase_distances
+from .system import System
+
+__all__ = [
+    "RoundTrip",
+    "roundtrip",
+    "Amplification",
+    "amplification",
+    "Growth",
+    "growth",
+    "ConvergenceRun",
+    "Convergence",
+    "converge",
+    "Threshold",
+    "irreversibility_threshold",
+    "displaced",
+]
+
+
+# ---------------------------------------------------------------------------------------------------
+# round trips
+
+
+@dataclass(frozen=True)
+class RoundTrip:
+    """Outcome of ``roundtrip``.
+
+    ``delta`` is sqrt(sum |dr|^2 + |dv|^2) between the returned state and the start, computed in the
+    working precision (N-body units); ``nan`` when the forward leg did not finish (then ``backward``
+    and ``returned`` are None).
+    """
+
+    delta: float
+    delta_position: float
+    delta_velocity: float
+    forward: Result
+    backward: Result | None
+    returned: System | None
+    start: System = field(repr=False)
+
+    @property
+    def status(self) -> str:
+        """The first unsuccessful leg's status, else ``success``."""
+        if not self.forward.success:
+            return self.forward.status
+        assert self.backward is not None
+        return self.backward.status if not self.backward.success else "success"
+
+    @property
+    def success(self) -> bool:
+        """Both legs finished."""
+        return self.forward.success and self.backward is not None and self.backward.success
+
+    def reversible(self, threshold: float = 1e-10) -> bool:
+        """True when both legs finished and the start is recovered to within ``threshold``."""
+        _positive(threshold, "threshold")
+        return self.success and self.delta <= threshold
+
+
+def _positive(value: Any, name: str) -> float:
+    if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
+        raise TypeError(f"{name}: expected a number, got {type(value).__name__}")
+    v = float(value)
+    if not math.isfinite(v) or v <= 0:
+        raise ValueError(f"{name}: must be a positive finite number, got {value}")
+    return v
+
+
+def _check_system(system: Any) -> System:
+    if not isinstance(system, System):
+        raise TypeError(f"system: expected a loschmidt.System, got {type(system).__name__}")
+    return system
+
+
+def roundtrip(system: System, t: Any, **options: Any) -> RoundTrip:
+    """Integrate ``system`` to ``t``, reverse, integrate ``t`` more, reverse; compare with the start.
+
+    ``options`` are passed to ``integrate`` for both legs (``method``, ``tol``, budgets ...).
+    """
+    s = _check_system(system)
+    if "times" in options:
+        raise ValueError("times: not supported by roundtrip (use integrate on each leg)")
+    fwd = integrate(s, t, **options)
+    if not fwd.success:
+        nan = float("nan")
+        return RoundTrip(nan, nan, nan, fwd, None, None, s)
+    back = integrate(fwd.system.reversed(), t, **options)
+    ret = back.system.reversed()
+    ret = System.from_limbs(
+        ret.limbs("masses"), ret.limbs("positions"), ret.limbs("velocities"), s.precision,
+        radii=s.radii, time=s.limbs("time"), check=False,
+    )
+    d = phase_distances(ret, s)
+    return RoundTrip(d["delta"], d["delta_position"], d["delta_velocity"], fwd, back, ret, s)
+
+
+# ---------------------------------------------------------------------------------------------------
+# perturbation growth
+
+
+def displaced(system: System, perturbation: Any, body: int = 0, axis: int = 0, kind: str = "positions") -> System:
+    """A copy of ``system`` with one coordinate moved by ``perturbation`` (added in the working
+    precision; raises ``ValueError`` when the precision cannot resolve the change)."""
+    s = _check_system(system)
+    if kind not in ("positions", "velocities"):
+        raise ValueError(f"kind: expected 'positions' or 'velocities', got {kind!r}")
+    if not isinstance(body, numbers.Integral) or isinstance(body, bool) or not 0 <= body < s.n:
+        raise ValueError(f"body: expected an index in [0, {s.n}), got {body!r}")
+    if not isinstance(axis, numbers.Integral) or isinstance(axis, bool) or not 0 <= axis < 3:
+        raise ValueError(f"axis: expected 0, 1 or 2, got {axis!r}")
+    prec = s.precision
+    dp = _p.to_limbs(perturbation, prec, name="perturbation")
+    if dp.ndim != 1 or dp[0] == 0:
+        raise ValueError("perturbation: expected one nonzero number")
+    arr = s.limbs(kind)
+    new = _p.add(arr[body, axis], dp, prec)
+    if np.array_equal(new, arr[body, axis]):
+        raise ValueError(
+            f"perturbation: {float(dp[0]):g} is below the resolution of precision {prec!r} at this "
+            "coordinate; use a higher precision or a larger perturbation"
+        )
+    arr[body, axis] = new
+    x = arr if kind == "positions" else s.limbs("positions")
+    v = arr if kind == "velocities" else s.limbs("velocities")
+    return System.from_limbs(s.limbs("masses"), x, v, prec, radii=s.radii, time=s.limbs("time"))
+
+
+@dataclass(frozen=True)
+class Amplification:
+    """Growth of a displacement: ``factor[i] = delta[i] / delta0`` at ``times[i]`` (offsets from the start)."""
+
+    times: np.ndarray
+    delta: np.ndarray
+    delta0: float
+    reference: Result
+    perturbed: Result
+
+    @property
+    def factor(self) -> np.ndarray:
+        return self.delta / self.delta0
+
+    @property
+    def final(self) -> float:
+        """A at the last output time."""
+        return float(self.factor[-1])
+
+
+def _default_times(t: Any, count: int, prec: str) -> list:
+    from fractions import Fraction
+
+    tf = _p.to_fraction(_p.to_limbs(t, prec, name="t"))
+    return [tf * Fraction(i, count) for i in range(1, count + 1)]
+
+
+def amplification(
+    system: System,
+    t: Any,
+    perturbation: Any = 1e-20,
+    body: int = 0,
+    axis: int = 0,
+    times: Sequence[Any] | None = None,
+    **options: Any,
+) -> Amplification:
+    """Integrate ``system`` and a copy with coordinate ``axis`` of body ``body`` displaced by
+    ``perturbation``; report A(t) = delta(t) / delta(0) at ``times`` (default: 64 even steps to t).
+
+    Both runs use the same ``options`` (see ``integrate``). The displacement is exact in the working
+    precision; choose it well above the integration error (tol) and well below one.
+    """
+    s = _check_system(system)
+    pert = displaced(s, perturbation, body, axis)
+    delta0 = phase_distances(pert, s)["delta"]
+    outs = list(times) if times is not None else _default_times(t, 64, s.precision)
+    ref = integrate(s, t, times=outs, **options)
+    per = integrate(pert, t, times=outs, **options)
+    if ref.trajectory is None or per.trajectory is None:
+        raise ValueError("times: at least one output time is needed")
+    count = min(len(ref.trajectory), len(per.trajectory))
+    deltas = np.array([phase_distances(ref.trajectory[i], per.trajectory[i])["delta"] for i in range(count)])
+    return Amplification(ref.trajectory.times[:count] - s.time, deltas, delta0, ref, per)
+
+
+@dataclass(frozen=True)
+class Growth:
+    """Accumulated growth of the most unstable direction, from renormalised twin trajectories.
+
+    ``log_factor[i]`` is ln A at ``times[i]``; ``exponent`` the finite-time Lyapunov exponent
+    ln A(t) / t; ``efolding_time`` its inverse.
+    """
+
+    times: np.ndarray
+    log_factor: np.ndarray
+    delta0: float
+    result: Result
+
+    @property
+    def factor(self) -> np.ndarray:
+        return np.exp(self.log_factor)
+
+    @property
+    def exponent(self) -> float:
+        return float(self.log_factor[-1] / self.times[-1]) if self.times[-1] != 0 else float("nan")
+
+    @property
+    def efolding_time(self) -> float:
+        lam = self.exponent
+        return float("inf") if lam <= 0 else 1.0 / lam
+
+
+def growth(
+    system: System,
+    t: Any,
+    perturbation: float | None = None,
+    intervals: int = 100,
+    **options: Any,
+) -> Growth:
+    """Maximal growth of perturbations by the two-trajectory method with renormalisation
+    (Benettin, Galgani & Strelcyn 1976; Benettin et al. 1980): the twin is pulled back to distance
+    ``perturbation`` after each of ``intervals`` equal intervals and the log growth is summed.
+
+    ``perturbation`` defaults to sqrt(tol) scaled into the working precision's useful range.
+    """
+    s = _check_system(system)
+    if not isinstance(intervals, numbers.Integral) or isinstance(intervals, bool) or intervals < 1:
+        raise ValueError(f"intervals: expected a positive integer, got {intervals!r}")
+    prec = s.precision
+    tol = options.get("tol") or DEFAULT_TOLERANCE[prec]
+    d0 = _positive(perturbation, "perturbation") if perturbation is not None else max(math.sqrt(tol), 1e-30) * 1e3
+    d0 = min(d0, 1e-6)
+    tf = _p.to_fraction(_p.to_limbs(t, prec, name="t"))
+    if tf == 0:
+        raise ValueError("t: must be nonzero")
+    # first displacement: along all coordinates of body 0's position, normalised afterwards
+    twin = displaced(s, d0, 0, 0)
+    ref = s
+    logs, ts = [], []
+    acc = 0.0
+    last = None
+    step = tf / intervals
+    for i in range(intervals):
+        span = step
+        r1 = integrate(ref, span, **options)
+        r2 = integrate(twin, span, **options)
+        last = r1
+        if not (r1.success and r2.success):
+            break
+        d = phase_distances(r1.system, r2.system)["delta"]
+        if not (d > 0 and math.isfinite(d)):
+            break
+        dstart = phase_distances(ref, twin)["delta"]
+        acc += math.log(d / dstart)
+        logs.append(acc)
+        ts.append(float(step * (i + 1)))
+        ref = r1.system
+        twin = _rescaled(r1.system, r2.system, d0 / d)
+    assert last is not None
+    return Growth(np.array(ts), np.array(logs), d0, last)
+
+
+def _rescaled(ref: System, twin: System, factor: float) -> System:
+    """ref + factor * (twin - ref), in the working precision."""
+    prec = ref.precision
+    out = []
+    for name in ("positions", "velocities"):
+        a = ref.limbs(name)
+        d = _p.sub(twin.limbs(name), a, prec)
+        f = np.broadcast_to(_p.to_limbs(factor, prec), d.shape)
+        out.append(_p.add(a, _p.mul(d, f, prec), prec))
+    return System.from_limbs(ref.limbs("masses"), out[0], out[1], prec, radii=ref.radii, time=ref.limbs("time"), check=False)
+
+
+# ---------------------------------------------------------------------------------------------------
+# converged solutions
+
+#: Tolerance ladder per precision used by ``converge`` (each rung about 10^3 to 10^4 tighter).
+LADDER = {
+    "f64": (1e-8, 1e-10, 1e-12, 1e-13),
+    "f64c": (1e-8, 1e-10, 1e-12, 1e-14),
+    "dd": (1e-16, 1e-19, 1e-22, 1e-25, 1e-28, 1e-30),
+    "qd": (1e-34, 1e-40, 1e-46, 1e-52, 1e-56, 1e-60),
+}
+_ORDER = ("f64", "dd", "qd")
+
+
+@dataclass(frozen=True)
+class ConvergenceRun:
+    precision: str
+    tol: float
+    status: str
+    evaluations: int
+    wall_time: float
+    digits: float | None  # agreement with the previous successful run
+
+
+@dataclass(frozen=True)
+class Convergence:
+    """Outcome of ``converge``: ``digits`` is the agreement actually observed between the last two
+    successful runs (``0`` when fewer than two finished); ``converged`` tells whether it reached
+    the digits asked for; ``system`` is the state of the most accurate finished run."""
+
+    digits: float
+    requested: float
+    converged: bool
+    runs: tuple[ConvergenceRun, ...]
+    system: System | None
+    result: Result | None
+    reason: str
+
+
+def agreement_digits(a: System, b: System) -> float:
+    """Significant digits to which two states agree in every phase-space coordinate.
+
+    Each coordinate's difference is taken relative to its own size, with a floor of 1e-3 times the
+    size of the largest coordinate of its kind (positions or velocities), so a coordinate that is zero
+    in one run and tiny noise in the other does not dominate. Computed exactly (Fraction) in the higher
+    of the two precisions.
+    """
+    worst = 0.0
+    for name in ("positions", "velocities"):
+        fa = _p.to_fraction(a.limbs(name)).ravel()
+        fb = _p.to_fraction(b.limbs(name)).ravel()
+        big = max(abs(x) for x in fb)
+        floor = big / 1000 if big else 1
+        for x, y in zip(fa, fb):
+            if x == y:
+                continue
+            rel = abs(x - y) / max(abs(y), floor)
+            worst = max(worst, float(rel))
+    if worst == 0.0:
+        return math.inf
+    return -math.log10(worst)
+
+
+def converge(
+    system: System,
+    t: Any,
+    digits: float = 10,
+    budget: float = 600.0,
+    precisions: Sequence[str] | None = None,
+    max_runs: int = 24,
+    **options: Any,
+) -> Convergence:
+    """Tighten the tolerance, and raise the precision when needed (f64 -> dd -> qd), until two
+    successive runs agree to ``digits`` significant digits in every coordinate, or ``budget``
+    seconds of engine time are spent. It never reports convergence it did not observe.
+
+    Parameters
+    ----------
+    system, t : the problem (see ``integrate``).
+    digits : significant digits asked for.
+    budget : seconds of wall time for all runs together; each run is capped by what is left.
+    precisions : ladder of precisions to climb; default from the system's precision upward.
+    options : other ``integrate`` options (``method``, ``max_steps``); ``tol`` is set by the ladder.
+    """
+    s = _check_system(system)
+    req = _positive(digits, "digits")
+    bud = _positive(budget, "budget")
+    if "tol" in options:
+        raise ValueError("tol: set by converge's tolerance ladder; do not pass it")
+    if precisions is None:
+        start = "f64" if s.precision in ("f64", "f64c") else s.precision
+        precisions = _ORDER[_ORDER.index(start):]
+    for p in precisions:
+        _p.check_precision(p, "precisions")
+    t0 = _time.perf_counter()
+    runs: list[ConvergenceRun] = []
+    prev: Result | None = None
+    best_digits = 0.0
+    reason = "ladder exhausted"
+    for prec in precisions:
+        base = s.with_precision(prec)
+        for tol in LADDER[prec]:
+            left = bud - (_time.perf_counter() - t0)
+            if left <= 0:
+                reason = "budget spent"
+                break
+            if len(runs) >= max_runs:
+                reason = "max_runs reached"
+                break
+            r = integrate(base, t, tol=tol, max_wall_time=left, **options)
+            d = None
+            if r.success:
+                if prev is not None:
+                    d = agreement_digits(prev.system, r.system)
+                    best_digits = max(d, 0.0)
+                prev = r
+            runs.append(ConvergenceRun(prec, tol, r.status, r.evaluations, r.wall_time, d))
+            if not r.success and r.status == "max_wall_time":
+                reason = "budget spent"
+                break
+            if d is not None and d >= req:
+                return Convergence(d, req, True, tuple(runs), prev.system, prev, "converged")
+        else:
+            continue
+        break
+    return Convergence(best_digits, req, False, tuple(runs), prev.system if prev else None, prev, reason)
+
+
+# ---------------------------------------------------------------------------------------------------
+# irreversibility threshold
+
+
+@dataclass(frozen=True)
+class Threshold:
+    """Smallest initial perturbation that the dynamics amplifies to order unity within t.
+
+    ``delta`` is in N-body units; ``metres`` and ``planck_lengths`` are set when a ``units.Scale`` was
+    given. ``amplification`` is the maximal growth factor A(t) (from renormalised twins).
+    ``numerical_floor`` is the integration's own error expressed as an initial perturbation
+    (round-trip distance / A); ``trustworthy`` says whether that floor lies below ``delta``, i.e.
+    whether the integration at this precision resolves perturbations as small as the threshold.
+    """
+
+    delta: float
+    amplification: float
+    exponent: float
+    metres: float | None
+    planck_lengths: float | None
+    roundtrip_delta: float
+    numerical_floor: float
+    trustworthy: bool
+    precision: str
+    growth: Growth = field(repr=False)
+
+
+def irreversibility_threshold(
+    system: System,
+    t: Any,
+    scale: Any = None,
+    intervals: int = 100,
+    **options: Any,
+) -> Threshold:
+    """The size of the smallest initial perturbation that grows to order unity within ``t``.
+
+    The growth factor comes from ``growth`` (renormalised twin trajectories); the threshold is 1/A(t).
+    With ``scale`` (a ``loschmidt.units.Scale``) it is also given in metres and in Planck lengths.
+    A round trip at the system's precision tells whether the integration itself is accurate enough
+    to resolve perturbations of that size.
+    """
+    s = _check_system(system)
+    if scale is not None:
+        from .units import Scale
+
+        if not isinstance(scale, Scale):
+            raise TypeError(f"scale: expected a loschmidt.units.Scale, got {type(scale).__name__}")
+    g = growth(s, t, intervals=intervals, **options)
+    if len(g.log_factor) == 0:
+        raise ValueError("t: the integration did not complete a single interval; check the system")
+    log_a = float(np.max(g.log_factor))
+    amp = math.exp(min(log_a, 700.0))
+    delta = math.exp(-log_a)
+    rt = roundtrip(s, t, **options)
+    floor = rt.delta / amp if math.isfinite(rt.delta) else float("inf")
+    metres = planck = None
+    if scale is not None:
+        from .units import PLANCK_LENGTH
+
+        metres = delta * scale.length
+        planck = metres / PLANCK_LENGTH
+    return Threshold(delta, amp, g.exponent, metres, planck, rt.delta, floor, bool(floor < delta), s.precision, g)
