@@ -1,5 +1,6 @@
 // Instantiates the f64 registrations (one translation unit per scalar keeps builds parallel).
 #include "register_arith.hpp"
+#include "register_batch.hpp"
 #include "register_engine.hpp"
 
 namespace loschmidt::bind {
@@ -7,5 +8,7 @@ void register_f64(py::module_& m) {
   register_arith<double>(m, "f64");
   register_engine<double, false>(m, "f64");
   register_engine<double, true>(m, "f64c");
+  register_batch<double, false>(m, "f64");
+  register_batch<double, true>(m, "f64c");
 }
 }  // namespace loschmidt::bind

@@ -115,6 +115,22 @@ struct exact_sum {
     }
     void sub_product(double a, double b) { add_product(a, b, true); }
 
+    // a*b*c exactly: the 159-bit significand product is added in two pieces.
+    void add_product3(double a, double b, double c, bool negate = false) {
+        if (a == 0.0 || b == 0.0 || c == 0.0) return;
+        uint64_t ma, mb, mc;
+        int ea, eb, ec;
+        bool na, nb, nc;
+        decompose(a, ma, ea, na);
+        decompose(b, mb, eb, nb);
+        decompose(c, mc, ec, nc);
+        const unsigned __int128 p = static_cast<unsigned __int128>(ma) * mb;
+        const bool neg = ((na != nb) != nc) != negate;
+        add_scaled(static_cast<unsigned __int128>(static_cast<uint64_t>(p)) * mc, neg, ea + eb + ec);
+        add_scaled(static_cast<unsigned __int128>(static_cast<uint64_t>(p >> 64)) * mc, neg,
+                   ea + eb + ec + 64);
+    }
+
     void add_integer(long long v) {
         if (v == 0) return;
         const bool neg = v < 0;
@@ -172,6 +188,16 @@ void add_product(exact_sum& s, const A& a, const B& b, bool negate = false) {
     const double* q = limbs(b);
     for (int i = 0; i < limbs_of<A>(); ++i)
         for (int j = 0; j < limbs_of<B>(); ++j) s.add_product(p[i], q[j], negate);
+}
+
+template <class A, class B, class C>
+void add_product3(exact_sum& s, const A& a, const B& b, const C& c, bool negate = false) {
+    const double* p = limbs(a);
+    const double* q = limbs(b);
+    const double* t = limbs(c);
+    for (int i = 0; i < limbs_of<A>(); ++i)
+        for (int j = 0; j < limbs_of<B>(); ++j)
+            for (int k = 0; k < limbs_of<C>(); ++k) s.add_product3(p[i], q[j], t[k], negate);
 }
 
 // ------------------------------------------------------------------------------------------
@@ -448,11 +474,13 @@ void test_arith(const char* tname, double bound, double unit, int range, int n) 
     std::printf("%s arithmetic (exact integer reference, bound %.3g = %.1f units)\n", tname, bound,
                 bound / unit);
     rng r(limbs_of<T>() == 2 ? 2 : 4);
-    std::string nm[12];
+    std::string nm[14];
     const char* ops[] = {"add", "sub", "mul", "div", "sqrt", "add_d", "sub_d", "d_sub", "mul_d",
-                         "div_d", "d_div", "pow2_exact"};
+                         "div_d", "d_div", "pow2_exact", "rsqrt", "div_long"};
+    const int nops = limbs_of<T>() == 4 ? 14 : 12;  // rsqrt and the long division are qd-only
     std::vector<err_stat> st;
-    for (int i = 0; i < 12; ++i) {
+    st.reserve(nops);
+    for (int i = 0; i < nops; ++i) {
         nm[i] = std::string(tname) + " " + ops[i];
         st.emplace_back(nm[i].c_str(), bound, unit);
     }
@@ -519,6 +547,26 @@ void test_arith(const char* tname, double bound, double unit, int range, int n) 
             add_product(diff, z, z);
             add_value(diff, s, true);
             st[4].record(relative(diff, ref, 2.0L), normalized(z));
+            if constexpr (std::is_same_v<T, qd>) {
+                if (!(s == T(0))) {  // rsqrt(s) = x: relative error ~ (s*x^2 - 1) / 2
+                    const T x = loschmidt::rsqrt(s);
+                    exact_sum ref1, diff1;
+                    ref1.add(1.0);
+                    add_product3(diff1, s, x, x);
+                    diff1.sub(1.0);
+                    st[12].record(relative(diff1, ref1, 2.0L), normalized(x));
+                }
+            }
+        }
+        if constexpr (std::is_same_v<T, qd>) {
+            if (!(mb == T(0))) {  // the paper's long division, kept for reference
+                const T z = loschmidt::detail::qd_div_long(ma, mb);
+                exact_sum ref, diff;
+                add_value(ref, ma);
+                add_product(diff, z, mb);
+                add_value(diff, ma, true);
+                st[13].record(relative(diff, ref), normalized(z));
+            }
         }
         {  // a + d
             const T z = a + d;
@@ -670,6 +718,9 @@ void test_misc() {
     expect(sqrt(qd(0.0)) == 0.0 && std::signbit(sqrt(qd(-0.0)).x[0]), "qd sqrt(+-0) = +-0");
     expect(std::isnan(sqrt(dd(-1.0)).hi) && std::isnan(sqrt(qd(-1.0)).x[0]), "sqrt(-1) is NaN");
     expect(sqrt(dd(inf)).hi == inf && sqrt(qd(inf)).x[0] == inf, "sqrt(inf) = inf");
+    expect(rsqrt(qd(0.0)).x[0] == inf && std::isnan(rsqrt(qd(-1.0)).x[0]) &&
+               rsqrt(qd(inf)) == 0.0 && rsqrt(qd(4.0)) == 0.5 && rsqrt(qd(0x1p-600)) == 0x1p300,
+           "qd rsqrt special values and exact cases");
     expect(!isfinite(dd(1.0) / dd(0.0)) && !isfinite(qd(1.0) / qd(0.0)), "1/0 is not finite");
     expect(!isfinite(dd(inf) + dd(1.0)) && !isfinite(qd(inf) + qd(1.0)), "inf + 1 is not finite");
     expect(!isfinite(dd(nan) * dd(2.0)) && !isfinite(qd(nan) * qd(2.0)), "NaN propagates");
@@ -848,7 +899,7 @@ void test_misc() {
 // --vectors IN OUT: one operation per line, "<op> <limbs of a> [<limbs of b>]" in hex floats.
 // Ops: dd_add dd_sub dd_mul dd_div (4 limbs), dd_sqrt (2), dd_add_d dd_sub_d dd_mul_d dd_div_d
 // (3: a.hi a.lo d), d_sub_dd d_div_dd (3: d b.hi b.lo), dd_cmp (4), and the same with qd_ (4 or
-// 8 limbs; qd_*_d: 5), qd_to_dd (4). Output: the result limbs, or for *_cmp the six comparison
+// 8 limbs; qd_*_d: 5), qd_rsqrt and qd_to_dd (4). Output: the result limbs, or for *_cmp the six comparison
 // results as 0/1 in the order < <= == != >= >.
 
 int run_vectors(const char* in_path, const char* out_path) {
@@ -915,11 +966,11 @@ int run_vectors(const char* in_path, const char* out_path) {
                 }
             }
         } else {
-            if (o == "qd_sqrt" || o == "qd_to_dd") {
+            if (o == "qd_sqrt" || o == "qd_rsqrt" || o == "qd_to_dd") {
                 ok = rd(v, 4);
                 const qd a = qd::raw(v[0], v[1], v[2], v[3]);
-                if (o == "qd_sqrt") {
-                    const qd z = sqrt(a);
+                if (o == "qd_sqrt" || o == "qd_rsqrt") {
+                    const qd z = o == "qd_sqrt" ? sqrt(a) : rsqrt(a);
                     wr(z.x, 4);
                 } else {
                     const dd z = loschmidt::to_dd(a);
@@ -994,7 +1045,7 @@ double bench_chain(long iters, int chains) {
 template <class T>
 double best_of(long iters, int chains) {
     double best = 1e30;
-    for (int rep = 0; rep < 5; ++rep) best = std::min(best, bench_chain<T>(iters, chains));
+    for (int rep = 0; rep < 9; ++rep) best = std::min(best, bench_chain<T>(iters, chains));
     return best;
 }
 

@@ -432,8 +432,9 @@ class Threshold:
     ``delta`` is in N-body units; ``metres`` and ``planck_lengths`` are set when a ``units.Scale`` was
     given. ``amplification`` is the maximal growth factor A(t) (from renormalised twins).
     ``numerical_floor`` is the integration's own error expressed as an initial perturbation
-    (round-trip distance / A); ``trustworthy`` says whether that floor lies below ``delta``, i.e.
-    whether the integration at this precision resolves perturbations as small as the threshold.
+    (round-trip distance / A; Portegies Zwart & Boekholt 2018 relate the two); ``trustworthy`` says
+    whether that floor lies below ``margin * delta`` (default margin 0.01), i.e. whether the
+    integration at this precision resolves perturbations well below the threshold.
     """
 
     delta: float
@@ -453,6 +454,7 @@ def irreversibility_threshold(
     t: Any,
     scale: Any = None,
     intervals: int = 100,
+    margin: float = 0.01,
     **options: Any,
 ) -> Threshold:
     """The size of the smallest initial perturbation that grows to order unity within ``t``.
@@ -463,6 +465,7 @@ def irreversibility_threshold(
     to resolve perturbations of that size.
     """
     s = _check_system(system)
+    margin = _positive(margin, "margin")
     if scale is not None:
         from .units import Scale
 
@@ -482,4 +485,4 @@ def irreversibility_threshold(
 
         metres = delta * scale.length
         planck = metres / PLANCK_LENGTH
-    return Threshold(delta, amp, g.exponent, metres, planck, rt.delta, floor, bool(floor < delta), s.precision, g)
+    return Threshold(delta, amp, g.exponent, metres, planck, rt.delta, floor, bool(floor <= margin * delta), s.precision, g)

@@ -23,7 +23,7 @@ inline int sequence_max_rows(StepSequence seq) {
     case StepSequence::harmonic: return 64;
     case StepSequence::bulirsch: return 36;
     case StepSequence::romberg: return 20;
-    case StepSequence::unit: return 128;
+    case StepSequence::consecutive: return 128;
   }
   return 64;
 }
@@ -38,7 +38,7 @@ inline std::vector<int> step_sequence(StepSequence seq, int rows) {
       case StepSequence::harmonic: n[j] = 2 * j; break;
       case StepSequence::bulirsch: n[j] = (j <= 3) ? 2 * j : 2 * n[j - 2]; break;
       case StepSequence::romberg: n[j] = 1 << j; break;
-      case StepSequence::unit: n[j] = j; break;
+      case StepSequence::consecutive: n[j] = j; break;
     }
   }
   return n;
@@ -96,6 +96,13 @@ class ExtrapolationTableau {
   // A component with zero scale and zero error is skipped; zero scale with nonzero error is infinite.
   double add_row(int j, const ErrorScale& sc) {
     if (j == 1) return 0.0;
+    extrapolate(j);
+    return scaled_error(sc);
+  }
+
+  // The extrapolation alone, for callers with their own error norm (read slot(1) and slot(2)).
+  void extrapolate(int j) {
+    if (j == 1) return;
     const T* w = &weight_[index(j, 0)];
     const std::size_t d = static_cast<std::size_t>(dim_);
     // Column by column (l outer): the d updates of one column are independent, so they pipeline;
@@ -110,6 +117,11 @@ class ExtrapolationTableau {
         older[i] = cur + (cur - older[i]) * wl;
       }
     }
+  }
+
+  // ||slot(1) - slot(2)|| in the scaled RMS norm of sc, after extrapolate(j) with j >= 2.
+  double scaled_error(const ErrorScale& sc) const {
+    const std::size_t d = static_cast<std::size_t>(dim_);
     const T* best = slot(1);
     const T* next = slot(2);
     double sum = 0.0;

@@ -280,9 +280,6 @@ Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_ti
       }
       ++attempts;
       const int k_before = ctrl.target();
-#ifdef LOSCHMIDT_TRACE
-      std::fprintf(stderr, "t=%.17g H=%.3e k=%d\n", to_double(t), to_double(H), ctrl.target());
-#endif
       if (!stepper.attempt(H, first || landing)) {
         ++st.rejected;
         continue;

@@ -10,11 +10,13 @@ namespace loschmidt {
 
 // Step-number sequence n_1, n_2, ... of the extrapolation tableau (substeps per macro step in row j).
 enum class StepSequence : int {
-  harmonic = 0,  // 2, 4, 6, 8, ...: cheapest work per order; the default
-  bulirsch = 1,  // 2, 4, 6, 8, 12, 16, 24, 32, ...: n_j = 2 n_{j-2}
-  romberg = 2,   // 2, 4, 8, 16, ...: doubling; expensive, mainly for comparison
-  unit = 3       // 1, 2, 3, 4, ...: legal because the Stormer/leapfrog substep is a symmetric
-                 // one-step method (even h-expansion for every n, not only even n)
+  harmonic = 0,     // 2, 4, 6, 8, ...: the classical choice for Gragg's midpoint rule
+  bulirsch = 1,     // 2, 4, 6, 8, 12, 16, 24, 32, ...: n_j = 2 n_{j-2}
+  romberg = 2,      // 2, 4, 8, 16, ...: doubling; expensive, for comparison only
+  consecutive = 3   // 1, 2, 3, 4, ...: the default. Legal because the Stormer/leapfrog substep is a
+                    // symmetric one-step method (even h-expansion for every n, not only even n).
+                    // Measured here: 20-30% fewer force evaluations than harmonic at equal
+                    // accuracy (Kepler e = 0.9, f64 and dd; Pythagorean problem, dd).
 };
 
 struct Options {
@@ -40,7 +42,7 @@ struct Options {
   // Status::interrupted. Empty means never called.
   std::function<bool()> poll;
   // Substep sequence of the extrapolation tableau.
-  StepSequence sequence = StepSequence::harmonic;
+  StepSequence sequence = StepSequence::consecutive;
 };
 
 struct Stats {

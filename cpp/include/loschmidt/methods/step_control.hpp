@@ -36,6 +36,14 @@ struct StepControlTuning {
   double initial_order_slope = 0.6;
   double initial_order_offset = 1.5;
   int initial_order = 0;
+  // Predictive step control (Gustafsson 1994; HNW I, II.4): when the last two accepted steps show
+  // the step shrinking, as on the way into a close encounter, shrink the proposal in proportion
+  // instead of learning it from one rejection per step. Applied only when it gives the smaller step.
+  bool predictive = true;
+  // On raising the order above the converged row, scale that row's step by the work ratio
+  // A_{k+1} / A_k (HNW II.9); false keeps the step of the converged row.
+  bool scale_step_on_raise = true;
+  double predictive_floor = 0.2;  // the predictive factor never cuts a proposal by more than this
 };
 
 // The controller's bookkeeping: per-row step proposals H_j and work per unit step W_j = A_j / H_j,
@@ -52,8 +60,10 @@ class OrderStepController {
     work_.assign(static_cast<std::size_t>(rows_) + 1, 0.0);
     work_[1] = n_[1] + 1.0;
     for (int j = 2; j <= rows_; ++j) work_[static_cast<std::size_t>(j)] = work_[static_cast<std::size_t>(j - 1)] + n_[static_cast<std::size_t>(j)];
-    h_.assign(static_cast<std::size_t>(rows_) + 1, 0.0);
-    w_.assign(static_cast<std::size_t>(rows_) + 1, 0.0);
+    h_.assign(static_cast<std::size_t>(rows_) + 1, -1.0);
+    err_.assign(static_cast<std::size_t>(rows_) + 1, 0.0);
+    prev_err_.assign(static_cast<std::size_t>(rows_) + 1, -1.0);
+    prev_h_ = 0.0;
     grow_.assign(static_cast<std::size_t>(rows_) + 1, 0.0);
     for (int j = 1; j <= rows_; ++j) grow_[static_cast<std::size_t>(j)] = std::pow(tune.growth_limit, 1.0 / (2 * j - 1));
     int k0 = tune.initial_order;
@@ -75,17 +85,12 @@ class OrderStepController {
   void set_target(int k) { k_ = std::clamp(k, 2, rows_ - 1); }
 
   // Row j >= 2 of a step of size |H| = habs ended with error estimate err: record its proposal.
+  // Only the error is stored; the proposal (a pow) is computed when the order logic asks for it,
+  // which is for at most four rows per step.
   void record(int j, double err, double habs) {
-    const double expo = 1.0 / (2 * j - 1);
-    const double grow = grow_[static_cast<std::size_t>(j)];
-    const double lo = 1.0 / (grow * tune_.shrink_limit);
-    double f;
-    if (err == 0.0) f = grow;
-    else f = tune_.safety * std::pow(tune_.error_target / err, expo);
-    if (!(f >= lo)) f = lo;  // also catches NaN
-    if (f > grow) f = grow;
-    h_[static_cast<std::size_t>(j)] = habs * f;
-    w_[static_cast<std::size_t>(j)] = work_[static_cast<std::size_t>(j)] / h_[static_cast<std::size_t>(j)];
+    err_[static_cast<std::size_t>(j)] = err;
+    h_[static_cast<std::size_t>(j)] = -1.0;  // not yet computed
+    habs_ = habs;
   }
 
   // Monitor: after row j of a step with target k, is convergence by row k + 1 still plausible?
@@ -122,8 +127,20 @@ class OrderStepController {
     } else if (k <= kc) {
       next_ = h(k);
     } else {
-      next_ = h(kc) * work(k) / work(kc);
+      next_ = tune_.scale_step_on_raise ? h(kc) * work(k) / work(kc) : h(kc);
     }
+    if (tune_.predictive && !rejected_ && prev_h_ > 0.0) {
+      const int r = std::min(k, kc);
+      const double e_now = err_[static_cast<std::size_t>(r)];
+      const double e_prev = prev_err_[static_cast<std::size_t>(r)];
+      if (e_now > 0.0 && e_prev > 0.0) {
+        const double fac = (habs / prev_h_) * std::pow(e_prev / e_now, 1.0 / (2 * r - 1));
+        if (fac < 1.0) next_ *= std::max(fac, tune_.predictive_floor);
+      }
+    }
+    prev_h_ = habs;
+    for (int j = 2; j <= rows_; ++j)
+      prev_err_[static_cast<std::size_t>(j)] = (j <= kc) ? err_[static_cast<std::size_t>(j)] : -1.0;
     k_ = std::clamp(k, 2, kmax);
     rejected_ = false;
   }
@@ -144,12 +161,29 @@ class OrderStepController {
   }
 
  private:
-  double h(int j) const { return h_[static_cast<std::size_t>(j)]; }
-  double w(int j) const { return w_[static_cast<std::size_t>(j)]; }
+  // Proposal of row j: H_j = |H| * clamp(safety * (error_target / err_j)^(1/(2j-1)), lo_j, hi_j)
+  // with hi_j = growth_limit^(1/(2j-1)) and lo_j = 1 / (hi_j * shrink_limit).
+  double h(int j) {
+    double& hj = h_[static_cast<std::size_t>(j)];
+    if (hj < 0.0) {
+      const double err = err_[static_cast<std::size_t>(j)];
+      const double grow = grow_[static_cast<std::size_t>(j)];
+      const double lo = 1.0 / (grow * tune_.shrink_limit);
+      double f;
+      if (err == 0.0) f = grow;
+      else f = tune_.safety * std::pow(tune_.error_target / err, 1.0 / (2 * j - 1));
+      if (!(f >= lo)) f = lo;  // also catches NaN
+      if (f > grow) f = grow;
+      hj = habs_ * f;
+    }
+    return hj;
+  }
+  double w(int j) { return work_[static_cast<std::size_t>(j)] / h(j); }
   std::vector<int> n_;
   int rows_ = 0;
   StepControlTuning tune_;
-  std::vector<double> work_, h_, w_, grow_;
+  std::vector<double> work_, h_, grow_, err_, prev_err_;
+  double prev_h_ = 0.0, habs_ = 0.0;
   int k_ = 2;
   bool rejected_ = false;
   double next_ = 0.0;
@@ -197,9 +231,6 @@ class ExtrapolationStepper {
       used_ = j;
       if (j == 1) continue;
       if (!std::isfinite(err) || (j > 2 && err >= std::max(4.0 * err_prev, 1.0))) {
-#ifdef LOSCHMIDT_TRACE
-        std::fprintf(stderr, "DIV j=%d err=%g prev=%g\n", j, err, err_prev);
-#endif
         ctrl_.diverged(habs);
         return false;
       }
@@ -226,17 +257,11 @@ class ExtrapolationStepper {
 
  private:
   bool accept(int kc, double habs) {
-#ifdef LOSCHMIDT_TRACE
-    std::fprintf(stderr, "ACC kc=%d k=%d\n", kc, ctrl_.target());
-#endif
     used_ = kc;
     ctrl_.accepted(kc, habs);
     return true;
   }
   bool reject(int kc) {
-#ifdef LOSCHMIDT_TRACE
-    std::fprintf(stderr, "REJ kc=%d k=%d\n", kc, ctrl_.target());
-#endif
     ctrl_.rejected(kc);
     return false;
   }
