@@ -9,6 +9,17 @@ from __future__ import annotations
 from . import _core
 from . import ics, orbits, precision, units
 from .ensemble import Ensemble
+from .chaos import (
+    Convergence,
+    RoundTrip,
+    Threshold,
+    amplification,
+    converge,
+    growth,
+    irreversibility_threshold,
+    roundtrip,
+)
+from .outcome import DEFAULT_DISTANCE_FACTOR, OUTCOME_KINDS, BoundPair, Outcome, integrate_until_escape, outcome
 from .integrate import DEFAULT_TOLERANCE, METHODS, Result, Trajectory, integrate, phase_distance, phase_distances
 from .precision import PRECISIONS
 from .status import STATUSES
@@ -38,4 +49,18 @@ __all__ = [
     "ics",
     "orbits",
     "Ensemble",
+    "roundtrip",
+    "RoundTrip",
+    "amplification",
+    "growth",
+    "converge",
+    "Convergence",
+    "irreversibility_threshold",
+    "Threshold",
+    "outcome",
+    "Outcome",
+    "BoundPair",
+    "OUTCOME_KINDS",
+    "DEFAULT_DISTANCE_FACTOR",
+    "integrate_until_escape",
 ]
