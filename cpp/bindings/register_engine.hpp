@@ -7,6 +7,7 @@
 
 #include "interrupt.hpp"
 #include "limbs.hpp"
+#include "loschmidt/methods/chain.hpp"
 #include "loschmidt/methods/gbs.hpp"
 #include "loschmidt/methods/status.hpp"
 #include "loschmidt/nbody/diagnostics.hpp"
@@ -53,12 +54,18 @@ void register_engine(py::module_& m, const std::string& suffix) {
   m.def(("integrate_" + suffix).c_str(),
         [](const std::string& method, const limb_array& masses, const limb_array& positions,
            const limb_array& velocities, const limb_array& t_end, const limb_array& times, double rtol,
-           double atol, long long max_steps, double max_wall_time, int max_order, double initial_step) {
+           double atol, long long max_steps, double max_wall_time, int max_order, double initial_step,
+           const std::vector<double>& radii, int regularization) {
           State<T> s = read_state<T>(masses, positions, velocities);
           const std::vector<T> tend = read_limbs<T>(t_end, {}, "t");
           if (tend.size() != 1) throw py::value_error("t: expected one value");
           const std::vector<T> outs = read_limbs<T>(times, {}, "times");
-          if (method != "gbs") throw py::value_error("method: unknown method '" + method + "'");
+          if (method != "gbs" && method != "chain")
+            throw py::value_error("method: unknown method '" + method + "'");
+          if (!radii.empty() && radii.size() != static_cast<size_t>(s.n))
+            throw py::value_error("radii: expected one radius per body");
+          if (regularization < 0 || regularization > 1)
+            throw py::value_error("regularization: unknown regularization");
 
           const py::ssize_t n = s.n;
           std::vector<T> traj_t, traj_x, traj_v;
@@ -84,9 +91,18 @@ void register_engine(py::module_& m, const std::string& suffix) {
           T t = T(0);
           const T e0 = energy(s);
           Stats st;
+          ChainReport report;
           {
             py::gil_scoped_release nogil;
-            st = integrate_gbs<T, Compensated>(s, t, tend[0], outs, on_output, opt);
+            if (method == "gbs") {
+              st = integrate_gbs<T, Compensated>(s, t, tend[0], outs, on_output, opt);
+            } else {
+              ChainOptions copt;
+              copt.radii = radii;
+              copt.regularization = static_cast<ChainRegularization>(regularization);
+              copt.report = &report;
+              st = integrate_chain<T, Compensated>(s, t, tend[0], outs, on_output, opt, copt);
+            }
           }
           if (poll.signalled()) throw py::error_already_set();
           const T e1 = energy(s);
@@ -103,6 +119,8 @@ void register_engine(py::module_& m, const std::string& suffix) {
           d["evaluations"] = st.evaluations;
           d["wall_time"] = st.wall_time;
           d["energy_error"] = to_double(de);
+          d["collision_pair"] = py::make_tuple(report.collision_i, report.collision_j);
+          d["rechains"] = report.rechains;
           const auto count = static_cast<py::ssize_t>(traj_t.size());
           d["trajectory_t"] = write_limbs<T>(traj_t, {count});
           d["trajectory_positions"] = write_limbs<T>(traj_x, {count, n, 3});
@@ -111,7 +129,8 @@ void register_engine(py::module_& m, const std::string& suffix) {
         },
         py::arg("method"), py::arg("masses"), py::arg("positions"), py::arg("velocities"), py::arg("t_end"),
         py::arg("times"), py::arg("rtol"), py::arg("atol"), py::arg("max_steps"), py::arg("max_wall_time"),
-        py::arg("max_order"), py::arg("initial_step"));
+        py::arg("max_order"), py::arg("initial_step"), py::arg("radii") = std::vector<double>{},
+        py::arg("regularization") = 0);
 }
 
 }  // namespace loschmidt::bind

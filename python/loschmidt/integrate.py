@@ -29,7 +29,10 @@ __all__ = [
     "phase_distances",
 ]
 
-METHODS = ("gbs",)
+METHODS = ("gbs", "chain")
+
+#: Regularizations of the chain method's leapfrog substep.
+REGULARIZATIONS = ("logarithmic", "time_transformed")
 
 #: Default relative tolerance per precision: a few hundred units of round-off, so the truncation
 #: error of the extrapolation sits just above the precision's floor.
@@ -107,6 +110,10 @@ class Result:
         |E(t) - E(0)| / |E(0)| computed in the working precision (absolute when E(0) = 0).
     trajectory : Trajectory or None
         States at the requested ``times``.
+    collision : (i, j) or None
+        The pair in contact when ``status == "collision"`` (chain method with radii).
+    rechains : int
+        Times the chain was rebuilt (chain method).
     """
 
     system: System
@@ -122,6 +129,8 @@ class Result:
     precision: str
     tol: float
     trajectory: Trajectory | None = None
+    collision: tuple[int, int] | None = None
+    rechains: int = 0
 
     @property
     def success(self) -> bool:
@@ -220,6 +229,7 @@ def integrate(
     max_wall_time: float | None = None,
     max_order: int | None = None,
     initial_step: float | None = None,
+    regularization: str = "logarithmic",
 ) -> Result:
     """Integrate ``system`` over a time span ``t`` (negative: backward) in its working precision.
 
@@ -228,8 +238,12 @@ def integrate(
     system : System
     t : number or decimal string
         Span of the integration, converted exactly to the working precision.
-    method : {"gbs"}
-        ``"gbs"``: Gragg-Bulirsch-Stoer extrapolation with order and step control.
+    method : {"gbs", "chain"}
+        ``"gbs"``: Gragg-Bulirsch-Stoer extrapolation with order and step control, in the bodies'
+        coordinates. ``"chain"``: the same extrapolation over a regularized leapfrog in chain
+        coordinates (Mikkola & Aarseth 1993; Mikkola & Tanikawa 1999): close encounters and
+        collision orbits cost little, and body radii (``System.radii``) end the run with status
+        ``collision`` when two bodies touch.
     tol : float, optional
         Relative tolerance of the local error; default per precision (``DEFAULT_TOLERANCE``).
     atol : float, optional
@@ -245,6 +259,9 @@ def integrate(
         Highest extrapolation column; default grows with the precision.
     initial_step : float, optional
         First step size; default chosen automatically.
+    regularization : {"logarithmic", "time_transformed"}
+        Time transformation of the chain method's leapfrog (Mikkola & Tanikawa 1999; Mikkola &
+        Aarseth 2002). Ignored by ``gbs``.
 
     Returns
     -------
@@ -264,11 +281,14 @@ def integrate(
     if order and order < 2:
         raise ValueError(f"max_order: must be at least 2, got {max_order}")
     h0 = 0.0 if initial_step is None else _positive_or_none(initial_step, "initial_step")
+    if regularization not in REGULARIZATIONS:
+        raise ValueError(f"regularization: expected one of {REGULARIZATIONS}, got {regularization!r}")
+    radii = [] if (system.radii is None or method != "chain") else [float(r) for r in system.radii]
 
     kernel = getattr(_core, f"integrate_{prec}")
     raw = kernel(
         method, system.limbs("masses"), system.limbs("positions"), system.limbs("velocities"),
-        t_limbs, outs, rtol, a_tol, steps, wall, order, h0,
+        t_limbs, outs, rtol, a_tol, steps, wall, order, h0, radii, REGULARIZATIONS.index(regularization),
     )
     return _wrap(system, raw, method, prec, rtol, bool(outs.shape[0]))
 
@@ -301,6 +321,8 @@ def _wrap(system: System, raw: dict, method: str, prec: str, rtol: float, want_t
         precision=prec,
         tol=rtol,
         trajectory=traj,
+        collision=tuple(int(i) for i in raw["collision_pair"]) if raw["collision_pair"][0] >= 0 else None,
+        rechains=int(raw["rechains"]),
     )
 
 
