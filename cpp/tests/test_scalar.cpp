@@ -9,8 +9,14 @@
 //                    16/8/4 limb products)
 //   /                (q*b - a) / a, which IS the relative error of the quotient q
 //   sqrt             (y^2 - a) / (2a), the relative error of y to first order
+//   rsqrt (qd)       (a x^2 - 1) / 2, likewise (triple products are exact here too)
+//   comparisons      against the exact sign of a - b
 // Bounds: dd 8u^2 (u = 2^-53; Joldes, Muller & Popescu 2017 prove 3u^2 for +, ~5u^2 for *,
-// 15u^2 for / - see double_double.hpp), qd 1e-60 (the interface's requirement).
+// 9.8u^2 for / - see double_double.hpp), qd 1e-60 (the interface's requirement).
+// Operands: near 1, wide exponent ranges, deep near-cancellation b = -a(1 + t), t = +-2^-k, and
+// b sharing leading limbs with -a, sparse values (powers of two, small integers, exact squares),
+// signed zeros; plus dd hard cases found by a local search. LOSCHMIDT_TEST_SCALE=N multiplies the
+// random counts (default ~1.5 s run).
 //
 // Modes:
 //   test_scalar                      run all checks, print a summary, exit 1 on any failure
@@ -647,6 +653,60 @@ void test_arith(const char* tname, double bound, double unit, int range, int n) 
 }
 
 // ------------------------------------------------------------------------------------------
+// Hard cases found by a local search (hill climbing on the limb bits, qd as reference) for the
+// largest dd errors; checked here against the exact reference as regressions.
+
+void test_hard_cases() {
+    std::printf("dd hard cases (found by local search)\n");
+    struct div_case {
+        dd x, y;
+        const char* what;
+    };
+    const div_case cases[] = {
+        {dd::raw(0x1.0324838ee1626p+0, -0x1.f6efdc9fe70aap-54),
+         dd::raw(0x1.017472fa0c644p+0, 0x1.f4c3c2f055a47p-54), "8.21u^2 for JMP Alg. 17"},
+        {dd::raw(0x1.02156f3cd005dp+0, 0x1.d9e458ac26607p-54),
+         dd::raw(0x1.f6b7ce5825e7dp+0, 0x1.fdcf00897cb46p-54), "6.38u^2 for JMP Alg. 18"},
+    };
+    // Alg. 18 (FMA builds) must meet the library's 8u^2; the LOSCHMIDT_NO_FMA build uses Alg. 17,
+    // for which only its proven 15u^2 + 56u^3 can be asked.
+    const double bound = loschmidt::eft_uses_fma ? 8.0 : 15.0;
+    for (const auto& c : cases) {
+        const dd z = c.x / c.y;
+        exact_sum ref, diff;
+        add_value(ref, c.x);
+        add_product(diff, z, c.y);
+        add_value(diff, c.x, true);
+        const double units = static_cast<double>(relative(diff, ref) / 0x1p-106L);
+        std::printf("  x/y (%s): %.3f u^2\n", c.what, units);
+        expect(units <= bound && normalized(z), "dd division hard case within bound");
+    }
+    {
+        const dd x = dd::raw(0x1.004b43fedd758p+0, 0x1.a73f8824d62bdp-54);
+        const dd y = dd::raw(0x1.004efadf3ed8fp+0, 0x1.ff6e201426becp-54);
+        const dd z = x * y;
+        exact_sum ref, diff;
+        add_product(ref, x, y);
+        add_value(diff, z);
+        add_product(diff, x, y, true);
+        const double units = static_cast<double>(relative(diff, ref) / 0x1p-106L);
+        std::printf("  x*y (3.99u^2 for JMP Alg. 12): %.3f u^2\n", units);
+        expect(units <= 8.0, "dd product hard case within 8u^2");
+    }
+    {
+        const dd a = dd::raw(0x1.0013d6fcad608p+0, -0x1.fd79e3c6ebc42p-54);
+        const dd z = sqrt(a);
+        exact_sum ref, diff;
+        add_value(ref, a);
+        add_product(diff, z, z);
+        add_value(diff, a, true);
+        const double units = static_cast<double>(relative(diff, ref, 2.0L) / 0x1p-106L);
+        std::printf("  sqrt (3.12u^2): %.3f u^2\n", units);
+        expect(units <= 8.0, "dd sqrt hard case within 8u^2");
+    }
+}
+
+// ------------------------------------------------------------------------------------------
 // Comparisons, against the exact sign of a - b.
 
 template <class T>
@@ -1081,6 +1141,7 @@ int main(int argc, char** argv) {
     test_eft();
     test_arith<dd>("dd", 8 * 0x1p-106, 0x1p-106, 900, 30000 * scale);
     test_arith<qd>("qd", 1e-60, 0x1p-212, 600, 20000 * scale);
+    test_hard_cases();
     std::printf("comparisons (exact sign of the difference)\n");
     test_compare<dd>("dd");
     test_compare<qd>("qd");

@@ -21,9 +21,11 @@
 //   sqrt(dd)   one Newton (Heron) correction of the binary64 square root, with the exact
 //              remainder hi - s^2 (Karp & Markstein 1997 style); ~2u^2 by the usual first-order
 //              analysis (common practice) - the test program measures it.
-// Measured maxima (random + adversarial vectors, exact reference): + 2.2u^2, * 3.2u^2, / 5.9u^2,
-// sqrt 2.8u^2, mixed forms <= 4.6u^2; all below the 8u^2 the tests require
-// (cpp/tests/test_scalar.cpp). Only DWDivDW3's proven 9.8u^2 exceeds 8u^2 on paper.
+// Measured maxima, FMA build (600k random operands per op incl. deep cancellation, exact
+// reference; then a local search for bad cases): + 2.2u^2, * 3.2u^2 (search: 4.0u^2),
+// / 4.2u^2 (search: 6.4u^2), sqrt 2.8u^2 (search: 3.1u^2), mixed forms <= 3.5u^2. All are below
+// the 8u^2 the tests require (cpp/tests/test_scalar.cpp); on paper only DWDivDW3's proven
+// 9.8u^2 exceeds it. The LOSCHMIDT_NO_FMA build's Alg. 17 reaches 8.2u^2 on a searched case.
 //
 // None of the hot operations branch (the published algorithms have no branches); sqrt branches
 // only to route zero, negative and infinite arguments.

@@ -14,6 +14,13 @@
 
 #include <cmath>
 
+// Value-changing floating-point options that compilers announce by macro. (-ffp-contract=fast
+// announces nothing; the build must pass -ffp-contract=off, and the tests would catch it.)
+#if defined(__FAST_MATH__) || defined(__ASSOCIATIVE_MATH__) || defined(__RECIPROCAL_MATH__) || \
+    (defined(__FINITE_MATH_ONLY__) && __FINITE_MATH_ONLY__)
+#error "loschmidt's extended precision needs IEEE semantics: no -ffast-math / -Ofast / -fassociative-math / -freciprocal-math / -ffinite-math-only"
+#endif
+
 namespace loschmidt {
 
 #if defined(LOSCHMIDT_NO_FMA)
@@ -80,18 +87,6 @@ inline double two_prod(double a, double b, double& err) noexcept {
     return two_prod_dekker(a, b, err);
 #else
     return two_prod_fma(a, b, err);
-#endif
-}
-
-// a*b + c with a single rounding where the build uses FMA, or a*b rounded then + c otherwise.
-// Only used where the calling algorithm's published error bound holds for both variants; the
-// dd/qd code selects its algorithm variant at compile time (LOSCHMIDT_NO_FMA) instead of relying
-// on this where it matters.
-inline double mul_add(double a, double b, double c) noexcept {
-#if defined(LOSCHMIDT_NO_FMA)
-    return a * b + c;
-#else
-    return std::fma(a, b, c);
 #endif
 }
 
