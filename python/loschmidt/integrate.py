@@ -137,6 +137,66 @@ class Result:
         """True when the run ended as asked (or at a physical event it was asked to detect)."""
         return self.status in SUCCESS_STATUSES
 
+    # -- exact save and load -------------------------------------------------------------------------
+    _FIELDS = ("t", "status", "message", "steps", "rejected", "evaluations", "wall_time", "energy_error",
+               "method", "precision", "tol", "rechains")
+
+    def to_dict(self) -> dict:
+        """A JSON-ready record: the final system (exact limbs), settings, status, counters, trajectory."""
+        from . import __version__
+        from .serialize import FORMAT_VERSION, limbs_to_json
+
+        out = {"format": "loschmidt.result", "format_version": FORMAT_VERSION, "loschmidt": __version__}
+        for name in self._FIELDS:
+            value = getattr(self, name)
+            out[name] = value.hex() if isinstance(value, float) else value
+        out["collision"] = list(self.collision) if self.collision else None
+        out["system"] = self.system.to_dict()
+        if self.trajectory is not None:
+            out["trajectory"] = {
+                "start": self.trajectory.start.to_dict(),
+                "t": limbs_to_json(self.trajectory.t_limbs),
+                "positions": limbs_to_json(self.trajectory.positions_limbs),
+                "velocities": limbs_to_json(self.trajectory.velocities_limbs),
+            }
+        return out
+
+    @classmethod
+    def from_dict(cls, data: dict) -> "Result":
+        """Rebuild a Result from ``to_dict`` output (floats and limbs bit for bit)."""
+        from .serialize import limbs_from_json
+
+        if not isinstance(data, dict) or data.get("format") != "loschmidt.result":
+            raise ValueError("data: not a 'loschmidt.result' record")
+        kw = {}
+        for name in cls._FIELDS:
+            value = data.get(name)
+            kw[name] = float.fromhex(value) if name in ("t", "wall_time", "energy_error", "tol") else value
+        traj = None
+        if data.get("trajectory"):
+            tr = data["trajectory"]
+            traj = Trajectory(
+                kw["precision"], limbs_from_json(tr["t"], "trajectory.t"),
+                limbs_from_json(tr["positions"], "trajectory.positions"),
+                limbs_from_json(tr["velocities"], "trajectory.velocities"), System.from_dict(tr["start"]),
+            )
+        col = data.get("collision")
+        return cls(system=System.from_dict(data["system"]), trajectory=traj,
+                   collision=tuple(col) if col else None, **kw)
+
+    def save(self, path: Any) -> None:
+        """Write this result to ``path`` as JSON, exactly (atomically)."""
+        from .serialize import write_json
+
+        write_json(path, self.to_dict())
+
+    @classmethod
+    def load(cls, path: Any) -> "Result":
+        """Read a result written by ``save``."""
+        from .serialize import read_json
+
+        return cls.from_dict(read_json(path, "loschmidt.result"))
+
 
 def _check_number(value: Any, name: str) -> None:
     if isinstance(value, (bool, np.bool_)):

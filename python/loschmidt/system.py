@@ -299,6 +299,64 @@ class System:
         ell = self._diagnostics()["angular_momentum"]
         return ell.copy() if limbs else _p.to_float(ell)
 
+    # -- exact save and load -------------------------------------------------------------------------
+    def to_dict(self) -> dict:
+        """A JSON-ready record with every limb as a hex-float string (see ``loschmidt.serialize``)."""
+        from . import __version__
+        from .serialize import FORMAT_VERSION, decimal_strings, limbs_to_json
+
+        return {
+            "format": "loschmidt.system",
+            "format_version": FORMAT_VERSION,
+            "loschmidt": __version__,
+            "precision": self._precision,
+            "n": self.n,
+            "masses": limbs_to_json(self._m),
+            "positions": limbs_to_json(self._x),
+            "velocities": limbs_to_json(self._v),
+            "time": limbs_to_json(self._time),
+            "radii": None if self._radii is None else [float(r).hex() for r in self._radii],
+            "decimal": {
+                "masses": decimal_strings(self._m),
+                "positions": decimal_strings(self._x),
+                "velocities": decimal_strings(self._v),
+                "time": decimal_strings(self._time),
+            },
+        }
+
+    @classmethod
+    def from_dict(cls, data: dict) -> "System":
+        """Rebuild a System from ``to_dict`` output, bit for bit."""
+        from .serialize import limbs_from_json
+
+        if not isinstance(data, dict) or data.get("format") != "loschmidt.system":
+            raise ValueError("data: not a 'loschmidt.system' record")
+        prec = _p.check_precision(data.get("precision"), "precision")
+        radii = data.get("radii")
+        if radii is not None:
+            radii = limbs_from_json(radii, "radii")
+        return cls.from_limbs(
+            limbs_from_json(data.get("masses"), "masses"),
+            limbs_from_json(data.get("positions"), "positions"),
+            limbs_from_json(data.get("velocities"), "velocities"),
+            prec,
+            radii=radii,
+            time=limbs_from_json(data.get("time"), "time"),
+        )
+
+    def save(self, path: Any) -> None:
+        """Write this state to ``path`` as JSON, exactly (written atomically)."""
+        from .serialize import write_json
+
+        write_json(path, self.to_dict())
+
+    @classmethod
+    def load(cls, path: Any) -> "System":
+        """Read a state written by ``save``; the limbs come back bit for bit."""
+        from .serialize import read_json
+
+        return cls.from_dict(read_json(path, "loschmidt.system"))
+
     def __repr__(self) -> str:
         return f"System(n={self.n}, precision={self._precision!r}, time={self.time:g})"
 
