@@ -239,7 +239,7 @@ def check_tolerance(tol: Any, prec: str, name: str = "tol") -> float:
     v = float(tol)
     if not (0 < v < 1) or not math.isfinite(v):
         raise ValueError(f"{name}: must lie in (0, 1), got {tol}")
-    floor = 4 * _p.epsilon(prec)
+    floor = 50 * _p.epsilon(prec)  # below this the error estimate is round-off noise
     if v < floor:
         raise ValueError(
             f"{name}: {v:g} is below what precision {prec!r} can resolve (about {floor:.1e}); "
@@ -338,8 +338,8 @@ def integrate(
     steps = _positive_or_none(max_steps, "max_steps", integer=True) or 10**9
     wall = _positive_or_none(max_wall_time, "max_wall_time") or math.inf
     order = 0 if max_order is None else _positive_or_none(max_order, "max_order", integer=True)
-    if order and order < 2:
-        raise ValueError(f"max_order: must be at least 2, got {max_order}")
+    if order and order < 3:
+        raise ValueError(f"max_order: must be at least 3, got {max_order}")
     h0 = 0.0 if initial_step is None else _positive_or_none(initial_step, "initial_step")
     if regularization not in REGULARIZATIONS:
         raise ValueError(f"regularization: expected one of {REGULARIZATIONS}, got {regularization!r}")

@@ -1,12 +1,15 @@
 // The Gragg-Bulirsch-Stoer integrator for the Newtonian N-body problem x'' = a(x):
 //   - NewtonianStormerSubstep: the symmetric substep, Stormer's form of Gragg's midpoint rule for
-//     second-order equations (kick-drift-kick leapfrog with n substeps over H; HNW I, II.14),
+//     second-order equations (kick-drift-kick leapfrog with n substeps over H; HNW I, II.14
+//     [memory for the section]),
 //     accumulating the increments (dx, dv) directly;
 //   - ExtrapolationStepper + OrderStepController (step_control.hpp): tableau and order control;
 //   - integrate_gbs: the driver. It lands exactly on every output time and on t_end by shortening
 //     the step (no interpolation), integrates backward when t_end < t, and enforces the budgets
-//     (max_steps, max_wall_time, step floor, polling for interrupts).
-// Re-entrant: no globals; all storage is allocated before the loop.
+//     (max_steps, max_wall_time, step floor, polling for interrupts). A planar system (all z and
+//     z velocities exactly zero) is integrated in two dimensions, with the same bits.
+// Re-entrant: no globals; all storage is allocated before the loop. The hot loop (substeps,
+// tableau, controller) allocates nothing.
 #pragma once
 
 #include <algorithm>
@@ -110,7 +113,7 @@ class NewtonianStormerSubstep {
 
 namespace detail {
 
-// Automatic first step (HNW I, II.4, adapted): from the sizes of y0, f(y0) and of the change of f
+// Automatic first step (the starting-step heuristic of HNW I, II.4 [memory], adapted): from the sizes of y0, f(y0) and of the change of f
 // over a small trial step, the step whose local error of order p would be about the tolerance.
 // Components with zero scale are skipped. Returns a magnitude.
 template <class T, int D>
@@ -287,7 +290,7 @@ Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_ti
       // ---- accepted: y += dy, t += H
       const T* dy = stepper.increment();
       if (Compensated) {
-        for (int i = 0; i < dim; ++i) compensated_add(y[static_cast<std::size_t>(i)], comp[static_cast<std::size_t>(i)], dy[i]);
+        for (std::size_t i = 0; i < static_cast<std::size_t>(dim); ++i) compensated_add(y[i], comp[i], dy[i]);
       } else {
         for (int i = 0; i < dim; ++i) y[static_cast<std::size_t>(i)] += dy[i];
       }
@@ -351,14 +354,17 @@ Stats integrate_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& out
   // ---- validation (before any work)
   s.require_consistent();
   if (s.n < 1) throw std::invalid_argument("integrate_gbs: need at least one body");
-  if (!isfinite(t) || !isfinite(t_end)) throw std::invalid_argument("integrate_gbs: t and t_end must be finite");
+  if (!isfinite(t) || !isfinite(t_end))
+    throw std::invalid_argument("integrate_gbs: t and t_end must be finite");
   if (!(opt.rtol >= 0) || !(opt.atol >= 0) || !(opt.rtol > 0 || opt.atol > 0))
     throw std::invalid_argument("integrate_gbs: rtol and atol must be >= 0 and not both zero");
   if (opt.max_steps < 1) throw std::invalid_argument("integrate_gbs: max_steps must be >= 1");
-  if (!(opt.max_wall_time >= 0)) throw std::invalid_argument("integrate_gbs: max_wall_time must be >= 0");
+  if (!(opt.max_wall_time >= 0))
+    throw std::invalid_argument("integrate_gbs: max_wall_time must be >= 0");
   if (!(opt.initial_step >= 0) || !std::isfinite(opt.initial_step))
     throw std::invalid_argument("integrate_gbs: initial_step must be finite and >= 0");
-  if (!(opt.min_step_fraction >= 0)) throw std::invalid_argument("integrate_gbs: min_step_fraction must be >= 0");
+  if (!(opt.min_step_fraction >= 0))
+    throw std::invalid_argument("integrate_gbs: min_step_fraction must be >= 0");
   const int rows = opt.max_order > 0 ? opt.max_order : scalar_traits<T>::default_max_order();
   if (rows < 3 || rows > sequence_max_rows(opt.sequence))
     throw std::invalid_argument("integrate_gbs: max_order out of range for the step sequence");
@@ -371,7 +377,8 @@ Stats integrate_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& out
                               : (q < prev || (q == prev && q != t)) && q >= t_end;
       if (!ok)
         throw std::invalid_argument(
-            "integrate_gbs: output_times must be sorted in the direction of integration and lie in (t, t_end]");
+            "integrate_gbs: output_times must be sorted in the direction of integration and lie in "
+            "(t, t_end]");
       prev = q;
     }
   }
@@ -382,11 +389,13 @@ Stats integrate_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& out
   // (the z accelerations are exact zeros), so the system is integrated in two dimensions, with the
   // same bits as the three-dimensional path and about a third less work.
   bool planar = true;
-  for (int i = 0; i < s.n && planar; ++i)
-    planar = (s.x[static_cast<std::size_t>(3 * i + 2)] == T(0)) && (s.v[static_cast<std::size_t>(3 * i + 2)] == T(0));
+  for (std::size_t i = 0; i < static_cast<std::size_t>(s.n) && planar; ++i)
+    planar = s.x[3 * i + 2] == T(0) && s.v[3 * i + 2] == T(0);
   if (planar)
-    return detail::run_gbs<2, T, Compensated>(s, t, t_end, output_times, on_output, opt, tune, rows, clock_start);
-  return detail::run_gbs<3, T, Compensated>(s, t, t_end, output_times, on_output, opt, tune, rows, clock_start);
+    return detail::run_gbs<2, T, Compensated>(s, t, t_end, output_times, on_output, opt, tune, rows,
+                                              clock_start);
+  return detail::run_gbs<3, T, Compensated>(s, t, t_end, output_times, on_output, opt, tune, rows,
+                                            clock_start);
 }
 
 // Without output times.
