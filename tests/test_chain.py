@@ -81,7 +81,7 @@ def test_pythagorean_round_trip_cheaper_than_gbs() -> None:
     s = ics.pythagorean(precision="dd")
     c = loschmidt.roundtrip(s, 70, method="chain", tol=1e-27)
     assert c.delta <= 1e-15
-    g = loschmidt.roundtrip(s, 70, method="gbs", tol=1e-29)
+    g = loschmidt.roundtrip(s, 70, method="gbs", tol=1e-30)
     assert g.delta <= 1e-15
     ce = c.forward.evaluations + c.backward.evaluations
     ge = g.forward.evaluations + g.backward.evaluations
