@@ -18,7 +18,11 @@
 //     measured |t(H) - t*| <= 1.3e-29 for |t| <= 3 in dd (about 100 eps |t|); t is then set to t*
 //     exactly, so the state's time is off by that residual at most;
 //   - with radii, stops at the first contact r_ij = r_i + r_j (Status::collision), located by
-//     regula falsi (Illinois) on the extrapolated step, reporting the pair in ChainReport.
+//     regula falsi (Illinois) on the extrapolated step, reporting the pair in ChainReport;
+//   - with post-Newtonian terms (ChainOptions::pn_orders; nbody/post_newtonian.hpp, kick scheme in
+//     leapfrog.hpp), B = -E_Newton absorbs the work of the PN forces and the centre of mass is
+//     integrated; a pair closer than merger_factor times the sum of its Schwarzschild radii
+//     2 m / c^2 ends the run with Status::merger, located and reported like a collision.
 // Physical time t and the binding energy B = -E are integrated variables; the centre of mass,
 // which moves freely, is advanced analytically from t.
 //
@@ -61,11 +65,15 @@ namespace loschmidt {
 
 // What a chain run reports beyond Stats (optional out-parameter through ChainOptions::report).
 struct ChainReport {
-  int collision_i = -1, collision_j = -1;  // caller's indices (i < j) of the pair in contact
+  int collision_i = -1, collision_j = -1;  // caller's indices (i < j) of the pair in contact (or merging)
   long long rechains = 0;                  // times the chain was rebuilt
   long long landings = 0;                  // steps shortened by Newton's method onto a time
   long long landing_iterations = 0;        // Newton iterations over all landings
   double landing_residual = 0.0;           // largest |t(H) - t*| accepted, in time units
+  // Post-Newtonian runs: the energy bookkeeping error at the end, |E(t) - E(0) - W| / |E(0)| with
+  // E the Newtonian energy relative to the centre of mass and W the work of the PN forces (the
+  // integrated B gives E(0) - W); 0 for Newtonian runs.
+  double pn_energy_error = 0.0;
 };
 
 struct ChainOptions {
@@ -81,6 +89,15 @@ struct ChainOptions {
   StepSequence sequence = StepSequence::consecutive;
   StepControlTuning tuning = {};
   ChainReport* report = nullptr;  // filled when not null
+  // Post-Newtonian terms: a mask of PostNewtonianOrder (pn_1 | pn_2 | pn_25; 0 = Newtonian, the
+  // default, and then nothing below is read), the speed of light in N-body units as the limbs of
+  // the working precision (or one double for any precision), and the merger test: merger when
+  // r_ij < merger_factor * (2 m_i + 2 m_j) / c^2 (0 = no merger test). The default 8 stops at
+  // 16 G M / c^2 for the pair's mass M, where v/c ~ 0.25 on a circular orbit and the PN series is
+  // about to fail (the innermost stable circular orbit of a test mass is at 6 G M / c^2).
+  int pn_orders = 0;
+  std::vector<double> light_speed;
+  double merger_factor = 8.0;
 };
 
 namespace chain {
@@ -210,6 +227,9 @@ class ChainStepper {
       sum += (e / sc) * (e / sc);
       return true;
     };
+    // With post-Newtonian terms the integrated centre of mass (after omega) is left out of the
+    // norm: its velocity changes only through the EIH terms, as a function of the relative motion
+    // that the norm already controls, and it is often exactly zero (no scale with atol = 0).
     for (int k = 0; k < L; ++k)
       if (!vec(lay_.X() + 3 * k) || !vec(lay_.W() + 3 * k)) return std::numeric_limits<double>::infinity();
     const int it = lay_.time(), ib = lay_.binding(), iw = lay_.omega();
@@ -289,6 +309,28 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
     if (s.n >= 2 && positive < 2)
       throw std::invalid_argument("integrate_chain: needs at least two bodies of positive mass");
   }
+  PostNewtonianTerms<T> pn;
+  std::vector<double> merger_radii;
+  if (copt.pn_orders != 0) {
+    if (copt.pn_orders < 0 || copt.pn_orders > pn_all) throw std::invalid_argument("integrate_chain: unknown pn_orders");
+    T c = T(0);
+    if (copt.light_speed.size() == static_cast<std::size_t>(scalar_traits<T>::limbs))
+      c = scalar_traits<T>::from_limbs(copt.light_speed.data());
+    else if (copt.light_speed.size() == 1)
+      c = T(copt.light_speed[0]);
+    else
+      throw std::invalid_argument("integrate_chain: light_speed must hold the limbs of c (or one double)");
+    if (!(c > T(0)) || !isfinite(c)) throw std::invalid_argument("integrate_chain: the speed of light must be positive and finite");
+    if (!(copt.merger_factor >= 0) || !std::isfinite(copt.merger_factor))
+      throw std::invalid_argument("integrate_chain: merger_factor must be finite and >= 0");
+    pn.set(copt.pn_orders, c);
+    if (copt.merger_factor > 0) {
+      const double c2 = to_double(c) * to_double(c);
+      merger_radii.assign(static_cast<std::size_t>(s.n), 0.0);
+      for (int i = 0; i < s.n; ++i)
+        merger_radii[static_cast<std::size_t>(i)] = copt.merger_factor * 2.0 * to_double(s.m[static_cast<std::size_t>(i)]) / c2;
+    }
+  }
   if (!copt.radii.empty()) {
     if (copt.radii.size() != static_cast<std::size_t>(s.n))
       throw std::invalid_argument("integrate_chain: radii must have one value per body");
@@ -334,9 +376,9 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
 
   // ---- setup (all allocation happens here)
   chain::ChainFrame<T> frame;
-  frame.setup(s, copt.radii);
+  frame.setup(s, copt.radii, merger_radii);
   chain::RegularizedLeapfrog<T> sub;
-  sub.setup(s.n, frame.masses(), frame.total_mass(), copt.regularization, frame.radii());
+  sub.setup(s.n, frame.masses(), frame.total_mass(), copt.regularization, frame.radii(), frame.merger_radii(), &pn);
   const chain::ChainLayout lay = sub.layout();
   const int dim = lay.dim();
   const int it = lay.time();
@@ -352,7 +394,23 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
     y[static_cast<std::size_t>(it)] = t;
     y[static_cast<std::size_t>(lay.binding())] = U - kin;  // B = -E (internal energy)
     y[static_cast<std::size_t>(lay.omega())] = U;           // omega starts at Omega = U
+    if (lay.centre_integrated) {
+      frame.centre(y.data() + lay.centre());
+      frame.set_integrated_centre(lay.centre());
+    }
   }
+  const T binding0 = y[static_cast<std::size_t>(lay.binding())];
+  auto contact_status = [&](int a, int b) { return frame.merger_pair(a, b) ? Status::merger : Status::collision; };
+  auto finish_pn = [&](Status status) {
+    if (pn.any()) {
+      T kin, U;
+      frame.energies(y.data(), kin, U);
+      using std::abs;
+      const T resid = kin - U + y[static_cast<std::size_t>(lay.binding())];
+      rep.pn_energy_error = to_double(binding0 == T(0) ? abs(resid) : abs(resid / binding0));
+    }
+    return status;
+  };
   auto time_now = [&]() { return Compensated ? y[static_cast<std::size_t>(it)] + comp[static_cast<std::size_t>(it)] : y[static_cast<std::size_t>(it)]; };
   auto store = [&]() {
     t = time_now();
@@ -368,11 +426,11 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
   auto report_contact = [&](int a, int b) { frame.body_pair(a, b, rep.collision_i, rep.collision_j); };
 
   // Contact already at the start.
-  if (!copt.radii.empty()) {
+  if (frame.contact_test()) {
     const chain::ContactProbe p = frame.contact(y.data());
     if (p.i >= 0) {
       report_contact(p.i, p.j);
-      return finish(Status::collision);
+      return finish(finish_pn(contact_status(p.i, p.j)));
     }
   }
 
@@ -390,7 +448,7 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
 
   auto finish_counted = [&](Status status) {
     st.evaluations = sub.evaluations;
-    return finish(status);
+    return finish(finish_pn(status));
   };
   if (!stepper.start_at(y.data())) return finish_counted(Status::nonfinite);
 
@@ -481,14 +539,12 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
   // to round-off) is left in dbest. False if no extrapolated state in the bracket overlaps.
   auto separation_gap = [&](const T* dy, int a, int b) {
     for (int i = 0; i < dim; ++i) ytrial[static_cast<std::size_t>(i)] = y[static_cast<std::size_t>(i)] + dy[i];
-    const double* rad = frame.radii();
-    return frame.gap_at(ytrial.data(), a, b, T(rad[a]) + T(rad[b]));
+    return frame.gap_at(ytrial.data(), a, b, frame.reach(a, b));
   };
   auto locate_contact = [&](const T& H_acc, int kc, int a, int b, double fraction) -> bool {
-    const double* rad = frame.radii();
-    const double rsum = rad[a] + rad[b];
+    const double rsum = frame.reach_double(a, b);
     T lo = T(0);
-    T glo = frame.gap_at(y.data(), a, b, T(rad[a]) + T(rad[b]));
+    T glo = frame.gap_at(y.data(), a, b, frame.reach(a, b));
     T hi = H_acc * T(fraction);
     T ghi = T(1);
     if (fraction < 1.0) {
@@ -579,8 +635,8 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
         rate_end = sub.time_rate(ytrial.data());
       }
 
-      // ---- contact inside this step?
-      if (frame.radii() != nullptr) {
+      // ---- contact (or merger) inside this step?
+      if (frame.contact_test()) {
         int a = sub.contact_i(), b = sub.contact_j();
         double fraction = sub.contact_fraction();
         if (sub.contact_sample() < 0) {
@@ -608,7 +664,7 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
             add_increment(dbest.data());
             ++st.steps;
             report_contact(a, b);
-            status = Status::collision;
+            status = contact_status(a, b);
             break;
           }
         }

@@ -55,26 +55,32 @@ inline void chain_separation(int i, int j, const T* X, const T* q, T* out) {
 }
 
 // Where the radii test found the deepest overlap at one evaluation (chain positions, i < j).
+// The contact distance of a pair is radii_i + radii_j, or merger_i + merger_j where that is larger
+// (merger radii: merger_factor times the Schwarzschild radius 2 m / c^2 of each body, set by the
+// post-Newtonian runs; the contact is then a merger).
 struct ContactProbe {
-  const double* radii = nullptr;  // chain order; nullptr = no test
-  int i = -1, j = -1;             // deepest overlapping pair of the last evaluation, -1 if none
-  double depth = 0.0;             // (r_i + r_j) - r_ij > 0 for that pair
+  const double* radii = nullptr;   // chain order; nullptr = no physical radii
+  const double* merger = nullptr;  // chain order; nullptr = no merger test
+  int i = -1, j = -1;              // deepest overlapping pair of the last evaluation, -1 if none
+  double depth = 0.0;              // contact distance - r_ij > 0 for that pair
+  bool merger_pair = false;        // that pair's contact distance is its merger distance
 };
 
 // Force function U = sum_{i<j} m_i m_j / r_ij (returned), body accelerations a (3n, chain order,
 // G = 1) and link accelerations A (3(n-1)). q is scratch (3n). Each pair's separation, 1/r and
-// 1/r^3 are computed once (Newton's third law). With probe.radii set, also reports the deepest
-// pair with r_ij < r_i + r_j (in double; a contact test needs no more).
+// 1/r^3 are computed once (Newton's third law). With probe.radii or probe.merger set, also reports
+// the deepest pair closer than its contact distance (in double; a contact test needs no more).
 template <class T>
 inline T chain_forces(int n, const T* m, const T* X, T* q, T* a, T* A, ContactProbe* probe = nullptr) {
   using std::sqrt;
   if (n > link_sum_span + 1) chain_positions(n, X, q);
   for (int k = 0; k < 3 * n; ++k) a[k] = T(0);
   T U = T(0);
-  const bool test = probe != nullptr && probe->radii != nullptr;
+  const bool test = probe != nullptr && (probe->radii != nullptr || probe->merger != nullptr);
   if (test) {
     probe->i = probe->j = -1;
     probe->depth = 0.0;
+    probe->merger_pair = false;
   }
   T d[3];
   for (int i = 0; i < n; ++i) {
@@ -92,11 +98,18 @@ inline T chain_forces(int n, const T* m, const T* X, T* q, T* a, T* A, ContactPr
         a[3 * j + c] -= qi * d[c];
       }
       if (test) {
-        const double depth = probe->radii[i] + probe->radii[j] - to_double(r);
+        double reach = probe->radii != nullptr ? probe->radii[i] + probe->radii[j] : 0.0;
+        bool merging = false;
+        if (probe->merger != nullptr && probe->merger[i] + probe->merger[j] >= reach) {
+          reach = probe->merger[i] + probe->merger[j];
+          merging = true;
+        }
+        const double depth = reach - to_double(r);
         if (depth > probe->depth) {
           probe->depth = depth;
           probe->i = i;
           probe->j = j;
+          probe->merger_pair = merging;
         }
       }
     }
@@ -199,10 +212,16 @@ inline void greedy_chain(int n, const Dist& dist, int* order, char* used) {
 // (which moves uniformly and is advanced analytically from the physical time: r_cm(t) =
 // r_cm(t0) + v_cm (t - t0), exact for free motion), and conversions between the caller's State and
 // the flat chain vector y = (X[3L], W[3L], extra...), L = n - 1.
+//
+// With post-Newtonian terms the Newtonian momentum sum m v is not conserved (the EIH terms conserve
+// a 1PN-corrected momentum instead), so the centre of mass is integrated as part of y:
+// set_integrated_centre(offset) makes to_state read (r_cm, v_cm) from y[offset .. offset + 6) and
+// centre() writes the initial values there. Merger radii (post-Newtonian runs) join the physical
+// radii in the contact test (ContactProbe).
 template <class T>
 class ChainFrame {
  public:
-  void setup(const State<T>& s, const std::vector<double>& radii) {
+  void setup(const State<T>& s, const std::vector<double>& radii, const std::vector<double>& merger_radii = {}) {
     n_ = s.n;
     order_.assign(static_cast<std::size_t>(n_), 0);
     new_order_.assign(static_cast<std::size_t>(n_), 0);
@@ -212,6 +231,9 @@ class ChainFrame {
     body_mass_ = s.m;
     radii_user_ = radii;
     radii_.assign(radii.empty() ? 0 : static_cast<std::size_t>(n_), 0.0);
+    merger_user_ = merger_radii;
+    merger_.assign(merger_radii.empty() ? 0 : static_cast<std::size_t>(n_), 0.0);
+    centre_offset_ = -1;
     q_.assign(3 * static_cast<std::size_t>(n_), T(0));
     u_.assign(3 * static_cast<std::size_t>(n_), T(0));
     a_.assign(3 * static_cast<std::size_t>(n_), T(0));
@@ -251,6 +273,34 @@ class ChainFrame {
   const T* masses() const { return mass_.data(); }  // chain order
   const T& total_mass() const { return M_; }
   const double* radii() const { return radii_.empty() ? nullptr : radii_.data(); }  // chain order
+  const double* merger_radii() const { return merger_.empty() ? nullptr : merger_.data(); }  // chain order
+  bool contact_test() const { return !radii_.empty() || !merger_.empty(); }
+
+  // Contact distance of chain positions a, b in T: radii_a + radii_b, or the merger distance where
+  // that is larger (as ContactProbe decides it); and whether it is the merger distance.
+  bool merger_pair(int a, int b) const {
+    if (merger_.empty()) return false;
+    if (radii_.empty()) return true;
+    const double rr = radii_.empty() ? 0.0 : radii_[static_cast<std::size_t>(a)] + radii_[static_cast<std::size_t>(b)];
+    return merger_[static_cast<std::size_t>(a)] + merger_[static_cast<std::size_t>(b)] >= rr;
+  }
+  double reach_double(int a, int b) const {
+    if (merger_pair(a, b)) return merger_[static_cast<std::size_t>(a)] + merger_[static_cast<std::size_t>(b)];
+    return radii_[static_cast<std::size_t>(a)] + radii_[static_cast<std::size_t>(b)];
+  }
+  T reach(int a, int b) const {
+    if (merger_pair(a, b)) return T(merger_[static_cast<std::size_t>(a)]) + T(merger_[static_cast<std::size_t>(b)]);
+    return T(radii_[static_cast<std::size_t>(a)]) + T(radii_[static_cast<std::size_t>(b)]);
+  }
+
+  // Integrated centre of mass (post-Newtonian runs): see the class comment.
+  void set_integrated_centre(int offset) { centre_offset_ = offset; }
+  void centre(T* out) const {
+    for (int d = 0; d < 3; ++d) {
+      out[d] = cm_x0_[d];
+      out[3 + d] = cm_v_[d];
+    }
+  }
 
   // Links and velocity links from the caller's coordinates (one rounding each: X_k = x_b - x_a).
   void from_state(const State<T>& s, T* y) const {
@@ -278,13 +328,23 @@ class ChainFrame {
       for (int d = 0; d < 3; ++d) qc[d] += mass_[static_cast<std::size_t>(k)] * q_[static_cast<std::size_t>(3 * k + d)];
     chain_velocities(n_, mass_.data(), M_, W, u_.data());
     const T dt = t - t0;
-    T rc[3];
-    for (int d = 0; d < 3; ++d) rc[d] = cm_x0_[d] + cm_v_[d] * dt - qc[d] / M_;
+    T rc[3], vc[3];
+    if (centre_offset_ >= 0) {
+      for (int d = 0; d < 3; ++d) {
+        rc[d] = y[centre_offset_ + d] - qc[d] / M_;
+        vc[d] = y[centre_offset_ + 3 + d];
+      }
+    } else {
+      for (int d = 0; d < 3; ++d) {
+        rc[d] = cm_x0_[d] + cm_v_[d] * dt - qc[d] / M_;
+        vc[d] = cm_v_[d];
+      }
+    }
     for (int k = 0; k < n_; ++k) {
       const std::size_t b = static_cast<std::size_t>(order_[static_cast<std::size_t>(k)]);
       for (int d = 0; d < 3; ++d) {
         s.x[3 * b + d] = rc[d] + q_[static_cast<std::size_t>(3 * k + d)];
-        s.v[3 * b + d] = cm_v_[d] + u_[static_cast<std::size_t>(3 * k + d)];
+        s.v[3 * b + d] = vc[d] + u_[static_cast<std::size_t>(3 * k + d)];
       }
     }
   }
@@ -315,12 +375,13 @@ class ChainFrame {
     force_function = us.value();
   }
 
-  // Contact test of a chain state against the radii: the deepest overlapping pair (chain
-  // positions) and its depth, or i = -1.
+  // Contact test of a chain state against the radii (and merger radii): the deepest overlapping
+  // pair (chain positions) and its depth, or i = -1.
   ContactProbe contact(const T* y) {
     ContactProbe p;
     p.radii = radii();
-    if (p.radii == nullptr) return p;
+    p.merger = merger_radii();
+    if (p.radii == nullptr && p.merger == nullptr) return p;
     chain_forces(n_, mass_.data(), y, q_.data(), a_.data(), A_.data(), &p);
     return p;
   }
@@ -437,6 +498,7 @@ class ChainFrame {
       const std::size_t b = static_cast<std::size_t>(order_[static_cast<std::size_t>(k)]);
       mass_[static_cast<std::size_t>(k)] = body_mass_[b];
       if (!radii_.empty()) radii_[static_cast<std::size_t>(k)] = radii_user_[b];
+      if (!merger_.empty()) merger_[static_cast<std::size_t>(k)] = merger_user_[b];
     }
   }
 
@@ -444,7 +506,8 @@ class ChainFrame {
   std::vector<int> order_, new_order_, pos_;
   std::vector<char> used_;
   std::vector<T> mass_, body_mass_;
-  std::vector<double> radii_, radii_user_;
+  std::vector<double> radii_, radii_user_, merger_, merger_user_;
+  int centre_offset_ = -1;
   T M_ = T(0);
   T cm_x0_[3] = {T(0), T(0), T(0)}, cm_v_[3] = {T(0), T(0), T(0)};
   std::vector<T> q_, u_, a_, A_, tmpX_, tmpW_;

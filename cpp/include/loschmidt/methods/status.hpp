@@ -34,7 +34,7 @@ inline constexpr StatusEntry status_table[] = {
     {Status::interrupted, "interrupted", "The integration was interrupted by the caller."},
     {Status::collision, "collision", "Two bodies came closer than the collision distance."},
     {Status::stop_condition, "stop_condition", "A user-supplied stop condition was met."},
-    {Status::merger, "merger", "Two bodies merged."},
+    {Status::merger, "merger", "Two bodies came within their merger distance (a multiple of the sum of their Schwarzschild radii)."},
     {Status::nonfinite, "nonfinite",
      "The state or its accelerations became non-finite (infinite or NaN)."},
 };
