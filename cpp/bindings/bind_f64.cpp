@@ -2,6 +2,7 @@
 #include "register_arith.hpp"
 #include "register_batch.hpp"
 #include "register_engine.hpp"
+#include "register_lyapunov.hpp"
 
 namespace loschmidt::bind {
 void register_f64(py::module_& m) {
@@ -10,5 +11,7 @@ void register_f64(py::module_& m) {
   register_engine<double, true>(m, "f64c");
   register_batch<double, false>(m, "f64");
   register_batch<double, true>(m, "f64c");
+  register_lyapunov<double, false>(m, "f64");
+  register_lyapunov<double, true>(m, "f64c");
 }
 }  // namespace loschmidt::bind

@@ -55,7 +55,8 @@ void register_engine(py::module_& m, const std::string& suffix) {
         [](const std::string& method, const limb_array& masses, const limb_array& positions,
            const limb_array& velocities, const limb_array& t_end, const limb_array& times, double rtol,
            double atol, long long max_steps, double max_wall_time, int max_order, double initial_step,
-           const std::vector<double>& radii, int regularization) {
+           const std::vector<double>& radii, int regularization, int pn, const std::vector<double>& c,
+           double merger_factor, int stop, int check_every, double distance_factor, double fixed_step) {
           State<T> s = read_state<T>(masses, positions, velocities);
           const std::vector<T> tend = read_limbs<T>(t_end, {}, "t");
           if (tend.size() != 1) throw py::value_error("t: expected one value");
@@ -66,6 +67,13 @@ void register_engine(py::module_& m, const std::string& suffix) {
             throw py::value_error("radii: expected one radius per body");
           if (regularization < 0 || regularization > 1)
             throw py::value_error("regularization: unknown regularization");
+          if (pn < 0 || pn > pn_all) throw py::value_error("pn: unknown post-Newtonian orders");
+          if (pn != 0 && method != "chain") throw py::value_error("pn: post-Newtonian terms need method 'chain'");
+          if (pn != 0 && c.size() != static_cast<size_t>(scalar_traits<T>::limbs))
+            throw py::value_error("c: expected the limbs of the speed of light");
+          // Stop condition and fixed-step mode: gbs only (validated again by the engine).
+          if (stop != 0 && method != "gbs") throw py::value_error("stop: stop conditions need method 'gbs'");
+          if (fixed_step != 0.0 && method != "gbs") throw py::value_error("fixed_step: needs method 'gbs'");
 
           const py::ssize_t n = s.n;
           std::vector<T> traj_t, traj_x, traj_v;
@@ -86,6 +94,10 @@ void register_engine(py::module_& m, const std::string& suffix) {
           opt.max_wall_time = max_wall_time;
           opt.max_order = max_order;
           opt.initial_step = initial_step;
+          opt.stop = static_cast<StopCondition>(stop);
+          opt.check_every = check_every;
+          opt.distance_factor = distance_factor;
+          opt.fixed_step = fixed_step;
           opt.poll = [&poll]() { return poll(); };
 
           T t = T(0);
@@ -101,6 +113,9 @@ void register_engine(py::module_& m, const std::string& suffix) {
               copt.radii = radii;
               copt.regularization = static_cast<ChainRegularization>(regularization);
               copt.report = &report;
+              copt.pn_orders = pn;
+              copt.light_speed = c;
+              copt.merger_factor = merger_factor;
               st = integrate_chain<T, Compensated>(s, t, tend[0], outs, on_output, opt, copt);
             }
           }
@@ -118,7 +133,8 @@ void register_engine(py::module_& m, const std::string& suffix) {
           d["rejected"] = st.rejected;
           d["evaluations"] = st.evaluations;
           d["wall_time"] = st.wall_time;
-          d["energy_error"] = to_double(de);
+          // With post-Newtonian terms: the error of the energy bookkeeping (ChainReport).
+          d["energy_error"] = pn != 0 ? report.pn_energy_error : to_double(de);
           d["collision_pair"] = py::make_tuple(report.collision_i, report.collision_j);
           d["rechains"] = report.rechains;
           const auto count = static_cast<py::ssize_t>(traj_t.size());
@@ -130,7 +146,9 @@ void register_engine(py::module_& m, const std::string& suffix) {
         py::arg("method"), py::arg("masses"), py::arg("positions"), py::arg("velocities"), py::arg("t_end"),
         py::arg("times"), py::arg("rtol"), py::arg("atol"), py::arg("max_steps"), py::arg("max_wall_time"),
         py::arg("max_order"), py::arg("initial_step"), py::arg("radii") = std::vector<double>{},
-        py::arg("regularization") = 0);
+        py::arg("regularization") = 0, py::arg("pn") = 0, py::arg("c") = std::vector<double>{},
+        py::arg("merger_factor") = 8.0, py::arg("stop") = 0, py::arg("check_every") = 10,
+        py::arg("distance_factor") = 10.0, py::arg("fixed_step") = 0.0);
 }
 
 }  // namespace loschmidt::bind

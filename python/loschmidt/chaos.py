@@ -5,6 +5,8 @@
 - ``amplification``: how much a tiny displacement of one coordinate grows, A(t) = delta(t) / delta(0).
 - ``growth``: the same with renormalisation (Benettin et al. 1980), so the accumulated growth of the
   most unstable direction can be followed far beyond where two trajectories would separate.
+- ``lyapunov``: the finite-time maximal Lyapunov exponent from the variational (tangent) equations,
+  integrated beside the orbit in C++ in the working precision.
 - ``converge``: runs with decreasing tolerance and rising precision until two successive runs agree
   to the asked number of digits (the converged-solution approach: Boekholt & Portegies Zwart 2015,
   Comp. Astrophys. Cosmol. 2:2).
@@ -33,6 +35,8 @@ __all__ = [
     "amplification",
     "Growth",
     "growth",
+    "Lyapunov",
+    "lyapunov",
     "ConvergenceRun",
     "Convergence",
     "converge",
@@ -292,6 +296,221 @@ def _rescaled(ref: System, twin: System, factor: float) -> System:
         f = np.broadcast_to(_p.to_limbs(factor, prec), d.shape)
         out.append(_p.add(a, _p.mul(d, f, prec), prec))
     return System.from_limbs(ref.limbs("masses"), out[0], out[1], prec, radii=ref.radii, time=ref.limbs("time"), check=False)
+
+
+# ---------------------------------------------------------------------------------------------------
+# Lyapunov exponents from the variational equations
+
+
+@dataclass(frozen=True)
+class Lyapunov:
+    """Outcome of ``lyapunov``: growth of the tangent vector along the orbit.
+
+    Attributes
+    ----------
+    times : ndarray
+        Output times (float64 offsets from the start) that were reached.
+    log_growth : ndarray
+        ln(|w(t)| / |w(0)|) at ``times``, w = (dx, dv) the tangent vector in the phase-space norm
+        sqrt(sum_i |dx_i|^2 + |dv_i|^2) (N-body units, as ``phase_distance``).
+    final_log_growth : float
+        ln growth at the time reached, ``span``.
+    span : float
+        The time reached, as an offset from the start.
+    tangent : ndarray
+        The final tangent direction, unit norm, shape (2, N, 3): position part, velocity part.
+    renormalizations : int
+        Exact rescalings of the tangent by powers of two (they change no result).
+    result : Result
+        The orbit; bit for bit what ``integrate`` gives with the same options and ``times``.
+    """
+
+    times: np.ndarray
+    log_growth: np.ndarray
+    final_log_growth: float
+    span: float
+    tangent: np.ndarray
+    renormalizations: int
+    result: Result
+
+    @property
+    def exponent(self) -> float:
+        """Finite-time maximal Lyapunov exponent ln growth / t at the time reached."""
+        return self.final_log_growth / abs(self.span) if self.span != 0 else float("nan")
+
+    @property
+    def efolding_time(self) -> float:
+        """1 / exponent (inf when the exponent is not positive)."""
+        lam = self.exponent
+        return float("inf") if not lam > 0 else 1.0 / lam
+
+    @property
+    def status(self) -> str:
+        return self.result.status
+
+    @property
+    def success(self) -> bool:
+        return self.result.success
+
+
+#: Options of ``integrate`` that ``lyapunov`` passes on.
+_LYAPUNOV_OPTIONS = ("tol", "atol", "max_steps", "max_wall_time", "max_order", "initial_step", "fixed_step")
+
+#: Largest allowed ``renormalize`` (2^300: the tangent's squared norm stays far from overflow).
+MAX_RENORMALIZE = 2.0**300
+
+
+def _splitmix64(seed: int, count: int) -> np.ndarray:
+    """``count`` numbers uniform in [-1, 1) from the SplitMix64 generator (Steele, Lea & Flood 2014),
+    written out here so the default tangent never depends on a library's random stream."""
+    mask = (1 << 64) - 1
+    state = seed & mask
+    out = np.empty(count)
+    for i in range(count):
+        state = (state + 0x9E3779B97F4A7C15) & mask
+        z = state
+        z = ((z ^ (z >> 30)) * 0xBF58476D1CE4E5B9) & mask
+        z = ((z ^ (z >> 27)) * 0x94D049BB133111EB) & mask
+        z ^= z >> 31
+        out[i] = 2.0 * ((z >> 11) * 2.0**-53) - 1.0
+    return out
+
+
+def default_tangent(system: System, seed: int = 0) -> np.ndarray:
+    """The default initial tangent of ``lyapunov``: 6N numbers uniform in [-1, 1) from SplitMix64
+    with ``seed`` (positions body by body, then velocities), z parts set to zero when the system is
+    planar (every z and z velocity exactly zero: the exponent of the planar problem), normalised to
+    unit phase-space norm. Shape (2, N, 3)."""
+    s = _check_system(system)
+    w = _splitmix64(seed, 6 * s.n).reshape(2, s.n, 3)
+    if _is_planar(s):
+        w[:, :, 2] = 0.0
+    return w / np.sqrt(np.sum(w * w))
+
+
+def _is_planar(s: System) -> bool:
+    return not np.any(s.limbs("positions")[:, 2]) and not np.any(s.limbs("velocities")[:, 2])
+
+
+def _check_tangent(tangent: Any, n: int) -> np.ndarray:
+    if isinstance(tangent, (str, bytes)):
+        raise TypeError("tangent: expected an array of shape (2, N, 3) or (2, N, 2)")
+    try:
+        w = np.array(tangent, dtype=float)
+    except (TypeError, ValueError):
+        raise TypeError("tangent: expected an array of shape (2, N, 3) or (2, N, 2)") from None
+    if w.ndim != 3 or w.shape[0] != 2 or w.shape[1] != n or w.shape[2] not in (2, 3):
+        raise ValueError(f"tangent: expected shape (2, {n}, 3) or (2, {n}, 2), got {w.shape}")
+    if w.shape[2] == 2:
+        w = np.concatenate([w, np.zeros((2, n, 1))], axis=2)
+    if not np.all(np.isfinite(w)):
+        raise ValueError("tangent: must be finite")
+    norm = math.sqrt(float(np.sum(w * w)))
+    if not norm > 0 or not math.isfinite(norm):
+        raise ValueError("tangent: must be a nonzero vector of finite norm")
+    return w / norm
+
+
+def lyapunov(
+    system: System,
+    t: Any,
+    times: Sequence[Any] | None = None,
+    method: str = "gbs",
+    renormalize: float = 1e16,
+    tangent: Any = None,
+    seed: int = 0,
+    **options: Any,
+) -> Lyapunov:
+    """Finite-time maximal Lyapunov exponent from the variational equations.
+
+    The tangent equations dx'' = J(x) dx (J the tidal tensor) are integrated beside the orbit in
+    C++, in the working precision, by the same extrapolation (``method="gbs"`` only). The error
+    control looks at the orbit alone, so the orbit is exactly that of ``integrate`` with the same
+    options and ``times``, and the tangent, whose size is arbitrary, never sets the step; the
+    tangent is extrapolated with the orbit's rows and is typically 10^2-10^3 times less accurate
+    than the orbit (its local error is the derivative of the orbit's). The tangent equations are
+    linear, so renormalising only rescales: whenever |w| leaves [1/renormalize, renormalize] it is
+    multiplied by an exact power of two and the log of the factor accumulated (the result does
+    not depend on ``renormalize``).
+
+    Parameters
+    ----------
+    system : System
+    t : number or decimal string
+        Span (nonzero; negative: backward; the exponent uses |t|).
+    times : sequence of numbers, optional
+        Output times for the series, as for ``integrate``; default 100 evenly spaced in (0, t].
+    method : {"gbs"}
+    renormalize : float
+        Bound on the tangent norm, in [2, 2^300] (default 1e16).
+    tangent : array (2, N, 3) or (2, N, 2), optional
+        Initial tangent (position part, velocity part), normalised here. Default
+        ``default_tangent(system, seed)``: a fixed pseudo-random direction, in the plane for a
+        planar system (include z parts to follow out-of-plane perturbations too).
+    seed : int
+        Seed of the default tangent.
+    options : ``tol``, ``atol``, ``max_steps``, ``max_wall_time``, ``max_order``, ``initial_step``,
+        ``fixed_step``, as for ``integrate``.
+
+    Returns
+    -------
+    Lyapunov
+    """
+    from . import _core
+    from .integrate import _check_method, _output_times, _positive_or_none, _time_limbs, _wrap, check_tolerance
+
+    s = _check_system(system)
+    if not isinstance(method, str):
+        raise TypeError(f"method: expected 'gbs', got {type(method).__name__}")
+    if method != "gbs":
+        _check_method(method)  # unknown names get the usual message
+        raise ValueError("method: lyapunov supports gbs")
+    for name in options:
+        if name not in _LYAPUNOV_OPTIONS:
+            raise TypeError(f"{name}: not an option of lyapunov (expected one of {_LYAPUNOV_OPTIONS})")
+    prec = s.precision
+    t_limbs = _time_limbs(t, prec, "t")
+    if not np.any(t_limbs):
+        raise ValueError("t: must be nonzero")
+    ren = _positive(renormalize, "renormalize")
+    if not 2.0 <= ren <= MAX_RENORMALIZE:
+        raise ValueError(f"renormalize: must lie in [2, 2^300], got {renormalize!r}")
+    if isinstance(seed, bool) or not isinstance(seed, numbers.Integral) or seed < 0:
+        raise ValueError(f"seed: expected a non-negative integer, got {seed!r}")
+    w = default_tangent(s, int(seed)) if tangent is None else _check_tangent(tangent, s.n)
+    outs = _output_times(_default_times(t, 100, prec) if times is None else times, t_limbs, prec)
+    rtol = check_tolerance(options.get("tol"), prec, "tol")
+    atol = options.get("atol")
+    a_tol = rtol if atol is None else _positive_or_none(atol, "atol")
+    steps = _positive_or_none(options.get("max_steps"), "max_steps", integer=True) or 10**9
+    wall = _positive_or_none(options.get("max_wall_time"), "max_wall_time") or math.inf
+    fixed = options.get("fixed_step")
+    h_fixed = 0.0 if fixed is None else _positive_or_none(fixed, "fixed_step")
+    order = _positive_or_none(options.get("max_order"), "max_order", integer=True) or 0
+    if order and order < 3 and fixed is None:
+        raise ValueError(f"max_order: must be at least 3, got {order}")
+    h0 = options.get("initial_step")
+    if h0 is not None and fixed is not None:
+        raise ValueError("initial_step: not used with fixed_step (every step has the fixed size)")
+    h0 = 0.0 if h0 is None else _positive_or_none(h0, "initial_step")
+
+    raw = getattr(_core, f"lyapunov_{prec}")(
+        s.limbs("masses"), s.limbs("positions"), s.limbs("velocities"),
+        _p.to_limbs(w[0], prec), _p.to_limbs(w[1], prec), t_limbs, outs,
+        rtol, a_tol, steps, wall, order, h0, h_fixed, ren,
+    )
+    result = _wrap(s, raw, "gbs", prec, rtol, False)
+    wt = np.stack([_p.to_float(raw["tangent_positions"]), _p.to_float(raw["tangent_velocities"])])
+    wt = wt / np.sqrt(np.sum(wt * wt))
+    return Lyapunov(
+        times=np.asarray(_p.to_float(raw["output_t"]), dtype=float).reshape(-1),
+        log_growth=np.asarray(raw["output_log_growth"], dtype=float),
+        final_log_growth=float(raw["log_growth"]),
+        span=float(_p.to_float(raw["t"])),
+        tangent=wt,
+        renormalizations=int(raw["renormalizations"]),
+        result=result,
+    )
 
 
 # ---------------------------------------------------------------------------------------------------

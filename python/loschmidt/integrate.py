@@ -34,6 +34,12 @@ METHODS = ("gbs", "chain")
 #: Regularizations of the chain method's leapfrog substep.
 REGULARIZATIONS = ("logarithmic", "time_transformed")
 
+#: Post-Newtonian orders the chain method can switch on, and their bits in the engine's mask.
+PN_ORDERS = {1: 1, 2: 2, 2.5: 4}
+
+#: Default merger distance in units of the pair's summed Schwarzschild radii 2 G (m_i + m_j) / c^2.
+DEFAULT_MERGER_FACTOR = 8.0
+
 #: Default relative tolerance per precision: a few hundred units of round-off, so the truncation
 #: error of the extrapolation sits just above the precision's floor.
 DEFAULT_TOLERANCE = {"f64": 1e-13, "f64c": 1e-14, "dd": 1e-28, "qd": 1e-56}
@@ -107,13 +113,19 @@ class Result:
     wall_time : float
         Seconds spent in the engine.
     energy_error : float
-        |E(t) - E(0)| / |E(0)| computed in the working precision (absolute when E(0) = 0).
+        |E(t) - E(0)| / |E(0)| computed in the working precision (absolute when E(0) = 0). With
+        ``pn``: the error of the energy bookkeeping, |E(t) - E(0) - W| / |E(0)|, E the Newtonian
+        energy relative to the centre of mass and W the work done by the post-Newtonian forces.
     trajectory : Trajectory or None
         States at the requested ``times``.
     collision : (i, j) or None
-        The pair in contact when ``status == "collision"`` (chain method with radii).
+        The pair in contact when ``status == "collision"`` (chain method with radii), or the
+        merging pair when ``status == "merger"`` (post-Newtonian runs).
     rechains : int
         Times the chain was rebuilt (chain method).
+    lifetime : float or None
+        With ``stop="escape"``: the time from the start at which the run stopped because a body
+        escaped (status ``stop_condition``); None otherwise.
     """
 
     system: System
@@ -131,6 +143,7 @@ class Result:
     trajectory: Trajectory | None = None
     collision: tuple[int, int] | None = None
     rechains: int = 0
+    lifetime: float | None = None
 
     @property
     def success(self) -> bool:
@@ -151,6 +164,7 @@ class Result:
             value = getattr(self, name)
             out[name] = value.hex() if isinstance(value, float) else value
         out["collision"] = list(self.collision) if self.collision else None
+        out["lifetime"] = None if self.lifetime is None else float(self.lifetime).hex()
         out["system"] = self.system.to_dict()
         if self.trajectory is not None:
             out["trajectory"] = {
@@ -181,6 +195,7 @@ class Result:
                 limbs_from_json(tr["velocities"], "trajectory.velocities"), System.from_dict(tr["start"]),
             )
         col = data.get("collision")
+        kw["lifetime"] = None if data.get("lifetime") is None else float.fromhex(data["lifetime"])
         return cls(system=System.from_dict(data["system"]), trajectory=traj,
                    collision=tuple(col) if col else None, **kw)
 
@@ -278,6 +293,70 @@ def _output_times(times: Any, t: np.ndarray, prec: str) -> np.ndarray:
     return np.ascontiguousarray(limbs)
 
 
+def _check_pn(pn: Any, c: Any, merger_factor: Any, method: str, prec: str) -> tuple[int, list, float]:
+    """Validate the post-Newtonian arguments: (order mask, limbs of c, merger factor)."""
+    if pn is None or (isinstance(pn, (tuple, list, set, frozenset)) and len(pn) == 0):
+        if c is not None:
+            raise ValueError("c: the speed of light is only used with pn")
+        if merger_factor is not None:
+            raise ValueError("merger_factor: only used with pn")
+        return 0, [], DEFAULT_MERGER_FACTOR
+    if isinstance(pn, np.ndarray):
+        pn = pn.tolist() if pn.ndim == 1 else pn
+    orders = pn if isinstance(pn, (tuple, list, set, frozenset)) else (pn,)
+    mask = 0
+    for order in orders:
+        if isinstance(order, (bool, np.bool_)) or not isinstance(order, numbers.Real):
+            raise TypeError(f"pn: expected post-Newtonian orders among {tuple(PN_ORDERS)}, got {order!r}")
+        if order not in PN_ORDERS:
+            raise ValueError(
+                f"pn: unknown post-Newtonian order {order!r}; expected a subset of {tuple(PN_ORDERS)}"
+            )
+        mask |= PN_ORDERS[order]
+    if method != "chain":
+        raise ValueError(f"pn: post-Newtonian terms need method='chain', got method={method!r}")
+    if c is None:
+        raise ValueError("c: the speed of light in N-body units (loschmidt.units.Scale(...).c) is required with pn")
+    _check_number(c, "c")
+    c_limbs = _p.to_limbs(c, prec, name="c")
+    if c_limbs.ndim != 1:
+        raise ValueError("c: expected a single number")
+    c_value = float(_p.to_float(c_limbs))
+    if not math.isfinite(c_value) or not c_value > 0:
+        raise ValueError(f"c: must be a positive finite number, got {c}")
+    if merger_factor is None:
+        factor = DEFAULT_MERGER_FACTOR
+    else:
+        _check_number(merger_factor, "merger_factor")
+        if not isinstance(merger_factor, numbers.Real):
+            raise TypeError(f"merger_factor: expected a number, got {type(merger_factor).__name__}")
+        factor = float(merger_factor)
+        if not math.isfinite(factor) or factor < 0:
+            raise ValueError(f"merger_factor: must be a finite number >= 0, got {merger_factor}")
+    return mask, [float(x) for x in c_limbs], factor
+
+
+def _check_stop(stop: Any, check_every: Any, distance_factor: Any, fixed_step: Any, initial_step: Any,
+                method: str) -> dict:
+    """Validate the stop condition and fixed-step arguments: the engine's keyword arguments."""
+    from .outcome import DEFAULT_DISTANCE_FACTOR, _check_factor
+
+    if stop not in (None, "escape"):
+        raise ValueError(f"stop: expected None or 'escape', got {stop!r}")
+    if stop is not None and method != "gbs":
+        raise ValueError(f"stop: the escape stop condition needs method='gbs', got method={method!r}")
+    every = _positive_or_none(check_every, "check_every", integer=True)
+    if every is None or every > 2**31 - 1:
+        raise ValueError(f"check_every: expected a positive integer, got {check_every!r}")
+    factor = DEFAULT_DISTANCE_FACTOR if distance_factor is None else _check_factor(distance_factor)
+    h = 0.0 if fixed_step is None else _positive_or_none(fixed_step, "fixed_step")
+    if fixed_step is not None and method != "gbs":
+        raise ValueError(f"fixed_step: needs method='gbs', got method={method!r}")
+    if fixed_step is not None and initial_step is not None:
+        raise ValueError("initial_step: not used with fixed_step (every step has the fixed size)")
+    return {"stop": 0 if stop is None else 1, "check_every": every, "distance_factor": factor, "fixed_step": h}
+
+
 def integrate(
     system: System,
     t: Any,
@@ -290,6 +369,13 @@ def integrate(
     max_order: int | None = None,
     initial_step: float | None = None,
     regularization: str = "logarithmic",
+    pn: Sequence[float] | None = None,
+    c: Any = None,
+    merger_factor: float | None = None,
+    stop: str | None = None,
+    check_every: int = 10,
+    distance_factor: float | None = None,
+    fixed_step: float | None = None,
 ) -> Result:
     """Integrate ``system`` over a time span ``t`` (negative: backward) in its working precision.
 
@@ -322,6 +408,47 @@ def integrate(
     regularization : {"logarithmic", "time_transformed"}
         Time transformation of the chain method's leapfrog (Mikkola & Tanikawa 1999; Mikkola &
         Aarseth 2002). Ignored by ``gbs``.
+    pn : tuple of {1, 2, 2.5}, optional
+        Post-Newtonian terms for compact bodies (chain method only), harmonic coordinates: 1 the
+        full Einstein-Infeld-Hoffmann N-body 1PN equations; 2 and 2.5 (radiation reaction) the
+        two-body relative accelerations (Blanchet 2014, Living Rev. Relativ. 17, 2) applied pair by
+        pair and split by mass ratio, so each pair term conserves momentum; the three-body terms
+        at those orders are left out (common practice in few-body work; Kupi, Amaro-Seoane &
+        Spurzem 2006, MNRAS 371, L45). With 1PN on, the 2PN pair term leaves out the part that the
+        EIH terms already produce (cpp/include/loschmidt/nbody/post_newtonian.hpp), so a binary
+        follows the two-body 2PN motion in its centre-of-mass frame. The PN forces depend on the
+        velocities in the frame given (harmonic coordinates; not Galilean invariant). Default:
+        Newtonian, bit for bit as without these arguments. 2.5PN (radiation reaction) makes the
+        motion irreversible: a round trip does not come back.
+    c : number or decimal string
+        The speed of light in N-body units (``loschmidt.units.Scale(...).c``, or the decimal string
+        ``Scale(...).decimal("c")`` for extended precision); required with ``pn``.
+    merger_factor : float, optional
+        With ``pn``, a pair closer than ``merger_factor`` times the sum of its Schwarzschild radii,
+        ``merger_factor * 2 G (m_i + m_j) / c^2``, ends the run with status ``merger`` and the pair
+        in ``Result.collision``. Default 8 (16 G M / c^2: v/c ~ 0.25 on a circular orbit, where the
+        PN expansion is about to fail); 0 switches the test off. The bodies are not merged.
+    stop : {None, "escape"}, optional
+        ``"escape"`` (gbs only): every ``check_every`` accepted steps the engine tests, in double
+        precision, whether a body escapes, and stops with status ``stop_condition`` when one does;
+        ``t`` is then the longest span and ``Result.lifetime`` the time it stopped. The test is
+        that of :mod:`loschmidt.outcome` for two and three bodies (three: the body outside the
+        most bound pair has positive energy relative to the pair's centre of mass, recedes, and
+        is farther than ``distance_factor`` semimajor axes of the pair); for N > 3 a body unbound
+        from the centre of mass of all the others, receding, and farther than
+        ``distance_factor`` times their size (the largest distance or semimajor axis of one of
+        them about the centre of mass of the rest; cpp/include/loschmidt/nbody/escape.hpp). It
+        is a trigger: classify the final state with ``loschmidt.outcome``.
+    check_every : int, optional
+        Accepted steps between escape tests (default 10).
+    distance_factor : float, optional
+        k of the escape test (default ``loschmidt.outcome.DEFAULT_DISTANCE_FACTOR``); 0 drops the
+        distance condition.
+    fixed_step : float, optional
+        Fixed-step mode (gbs only), for measuring the order of the method: every step has this
+        size (the last before each output time and ``t`` is shortened to land), with exactly
+        ``max_order`` rows of extrapolation (any number >= 1 here; order 2 * max_order) and no
+        error control or rejection (``tol`` is not used); ``initial_step`` is not accepted with it.
 
     Returns
     -------
@@ -338,17 +465,19 @@ def integrate(
     steps = _positive_or_none(max_steps, "max_steps", integer=True) or 10**9
     wall = _positive_or_none(max_wall_time, "max_wall_time") or math.inf
     order = 0 if max_order is None else _positive_or_none(max_order, "max_order", integer=True)
-    if order and order < 3:
+    if order and order < 3 and fixed_step is None:
         raise ValueError(f"max_order: must be at least 3, got {max_order}")
     h0 = 0.0 if initial_step is None else _positive_or_none(initial_step, "initial_step")
     if regularization not in REGULARIZATIONS:
         raise ValueError(f"regularization: expected one of {REGULARIZATIONS}, got {regularization!r}")
     radii = [] if (system.radii is None or method != "chain") else [float(r) for r in system.radii]
+    pn_mask, c_limbs, factor = _check_pn(pn, c, merger_factor, method, prec)
 
     kernel = getattr(_core, f"integrate_{prec}")
     raw = kernel(
         method, system.limbs("masses"), system.limbs("positions"), system.limbs("velocities"),
         t_limbs, outs, rtol, a_tol, steps, wall, order, h0, radii, REGULARIZATIONS.index(regularization),
+        pn_mask, c_limbs, factor, **_check_stop(stop, check_every, distance_factor, fixed_step, initial_step, method),
     )
     return _wrap(system, raw, method, prec, rtol, bool(outs.shape[0]))
 
@@ -383,6 +512,7 @@ def _wrap(system: System, raw: dict, method: str, prec: str, rtol: float, want_t
         trajectory=traj,
         collision=tuple(int(i) for i in raw["collision_pair"]) if raw["collision_pair"][0] >= 0 else None,
         rechains=int(raw["rechains"]),
+        lifetime=float(_p.to_float(raw["t"])) if status_name(code) == "stop_condition" else None,
     )
 
 

@@ -52,6 +52,10 @@ struct ErrorScale {
   // drops components known to be exactly zero (a planar system's z) keeps the full count here so
   // that its step control, and hence its bits, match the full problem.
   int count = 0;
+  // Components the norm covers: those i with (i mod stride) < block; 0 means all. A problem that
+  // carries passive components beside the state (the tangent vector of the variational
+  // equations, gbs.hpp) keeps them out of the error control this way.
+  int block = 0, stride = 0;
   std::vector<double> y0;  // to_double of the step's starting point
 
   template <class T>
@@ -120,21 +124,27 @@ class ExtrapolationTableau {
   }
 
   // ||slot(1) - slot(2)|| in the scaled RMS norm of sc, after extrapolate(j) with j >= 2.
+  // Only the components selected by sc.block / sc.stride count, in increasing index order.
   double scaled_error(const ErrorScale& sc) const {
     const std::size_t d = static_cast<std::size_t>(dim_);
+    const std::size_t stride = sc.stride > 0 ? static_cast<std::size_t>(sc.stride) : d;
+    const std::size_t block = sc.block > 0 ? static_cast<std::size_t>(sc.block) : stride;
     const T* best = slot(1);
     const T* next = slot(2);
     double sum = 0.0;
-    for (std::size_t i = 0; i < d; ++i) {
-      const double diff = to_double(best[i] - next[i]);
-      if (diff == 0.0) continue;
-      const double y0 = sc.y0[i];
-      const double y1 = y0 + to_double(best[i]);
-      const double a0 = std::fabs(y0), a1 = std::fabs(y1);
-      const double scale = sc.atol + sc.rtol * (a0 > a1 ? a0 : a1);
-      if (!(scale > 0.0)) return std::numeric_limits<double>::infinity();
-      const double q = diff / scale;
-      sum += q * q;
+    for (std::size_t base = 0; base < d; base += stride) {
+      const std::size_t end = base + block < d ? base + block : d;
+      for (std::size_t i = base; i < end; ++i) {
+        const double diff = to_double(best[i] - next[i]);
+        if (diff == 0.0) continue;
+        const double y0 = sc.y0[i];
+        const double y1 = y0 + to_double(best[i]);
+        const double a0 = std::fabs(y0), a1 = std::fabs(y1);
+        const double scale = sc.atol + sc.rtol * (a0 > a1 ? a0 : a1);
+        if (!(scale > 0.0)) return std::numeric_limits<double>::infinity();
+        const double q = diff / scale;
+        sum += q * q;
+      }
     }
     return std::sqrt(sum / static_cast<double>(sc.count > 0 ? sc.count : dim_));
   }

@@ -1,13 +1,18 @@
-// The Gragg-Bulirsch-Stoer integrator for the Newtonian N-body problem x'' = a(x):
-//   - NewtonianStormerSubstep: the symmetric substep, Stormer's form of Gragg's midpoint rule for
+// The Gragg-Bulirsch-Stoer integrator for second-order problems q'' = a(q), and its Newtonian
+// N-body instance:
+//   - StormerSubstep<T, Force>: the symmetric substep, Stormer's form of Gragg's midpoint rule for
 //     second-order equations (kick-drift-kick leapfrog with n substeps over H; HNW I, II.14
-//     [memory for the section]),
-//     accumulating the increments (dx, dv) directly;
+//     [memory for the section]), accumulating the increments (dq, dp) directly, over any
+//     acceleration model Force (NewtonianForce here; the variational equations in lyapunov.hpp);
 //   - ExtrapolationStepper + OrderStepController (step_control.hpp): tableau and order control;
-//   - integrate_gbs: the driver. It lands exactly on every output time and on t_end by shortening
-//     the step (no interpolation), integrates backward when t_end < t, and enforces the budgets
-//     (max_steps, max_wall_time, step floor, polling for interrupts). A planar system (all z and
-//     z velocities exactly zero) is integrated in two dimensions, with the same bits.
+//   - detail::run_extrapolation: the driver, generic over a Problem (the substep, the layout of
+//     the flat vector y and what happens after each accepted step; NewtonianProblem here). It
+//     lands exactly on every output time and on t_end by shortening the step (no
+//     interpolation), integrates backward when t_end < t, enforces the budgets (max_steps,
+//     max_wall_time, step floor, polling for interrupts), tests the stop condition
+//     (Options::stop) and has a fixed-step mode (Options::fixed_step) for order measurements;
+//   - integrate_gbs: the Newtonian entry point. A planar system (all z and z velocities exactly
+//     zero) is integrated in two dimensions, with the same bits.
 // Re-entrant: no globals; all storage is allocated before the loop. The hot loop (substeps,
 // tableau, controller) allocates nothing.
 #pragma once
@@ -16,6 +21,7 @@
 #include <chrono>
 #include <cmath>
 #include <stdexcept>
+#include <string>
 #include <type_traits>
 #include <utility>
 #include <vector>
@@ -24,6 +30,7 @@
 #include <loschmidt/methods/options.hpp>
 #include <loschmidt/methods/status.hpp>
 #include <loschmidt/methods/step_control.hpp>
+#include <loschmidt/nbody/escape.hpp>
 #include <loschmidt/nbody/forces.hpp>
 #include <loschmidt/nbody/state.hpp>
 #include <loschmidt/scalar/compensated.hpp>
@@ -31,28 +38,55 @@
 
 namespace loschmidt {
 
-// Stormer/leapfrog substep on the flat phase-space vector y = (x[Dn], v[Dn]), D = 3 (or 2 for a
-// planar system, see integrate_gbs).
-// With h = H/n:  v_{1/2} = v0 + h/2 a(x0);  x_{i+1} = x_i + h v_{i+1/2};
-//                v_{i+3/2} = v_{i+1/2} + h a(x_{i+1});  ...;  v_n = v_{n-1/2} + h/2 a(x_n).
-// Symmetric, so its error expands in even powers of h for every n. It costs n force evaluations
-// plus a(x0), which begin() computes once per macro step and all rows share.
-template <class T, int D = 3>
-class NewtonianStormerSubstep {
+// Newtonian accelerations of n bodies in D dimensions as an acceleration model for
+// StormerSubstep: q = x (D n components, body-major), a(q) = the gravitational accelerations.
+template <class T, int D>
+class NewtonianForce {
  public:
   void setup(int n, const T* m) {
     n_ = n;
     m_ = m;
-    const std::size_t k = D * static_cast<std::size_t>(n);
+    pairs_.setup(n);
+  }
+  int components() const { return D * n_; }
+  // Single pass in double (fastest there); three passes in extended precision, where the
+  // independent sqrt/division chains of the pairs overlap (same bits either way).
+  void operator()(const T* x, T* a) {
+    if constexpr (std::is_same_v<T, double>) accelerations_in<D>(n_, m_, x, a);
+    else accelerations_in<D>(n_, m_, x, a, pairs_);
+  }
+
+ private:
+  int n_ = 0;
+  const T* m_ = nullptr;
+  PairWorkspace<T> pairs_;
+};
+
+// Stormer/leapfrog substep on the flat phase-space vector y = (q[K], p[K]), q'' = a(q), K =
+// force().components(). With h = H/n:
+//   p_{1/2} = p0 + h/2 a(q0);  q_{i+1} = q_i + h p_{i+1/2};
+//   p_{i+3/2} = p_{i+1/2} + h a(q_{i+1});  ...;  p_n = p_{n-1/2} + h/2 a(q_n).
+// Symmetric, so its error expands in even powers of h for every n. It costs n force evaluations
+// plus a(q0), which begin() computes once per macro step and all rows share.
+// Force: void setup(...) (by the owner), int components() const, void operator()(const T* q, T* a).
+template <class T, class Force>
+class StormerSubstep {
+ public:
+  Force& force() { return force_; }
+  const Force& force() const { return force_; }
+
+  // Storage for force().components(); call after the force model is set up.
+  void allocate() {
+    k_ = force_.components();
+    const std::size_t k = static_cast<std::size_t>(k_);
     a0_.assign(k, T(0));
     a_.assign(k, T(0));
     xt_.assign(k, T(0));
-    pairs_.setup(n);
   }
 
   bool begin(const T* y0) {
     using std::isfinite;
-    force(y0, a0_.data());
+    force_(y0, a0_.data());
     ++evaluations;
     for (const T& q : a0_)
       if (!isfinite(q)) return false;
@@ -63,12 +97,12 @@ class NewtonianStormerSubstep {
 
   // Acceleration at arbitrary positions (used by the automatic first step).
   void evaluate(const T* x, T* a) {
-    force(x, a);
+    force_(x, a);
     ++evaluations;
   }
 
   void increment(const T* y0, const T& H, int nsub, T* dy) {
-    const int k = D * n_;
+    const int k = k_;
     const T* x0 = y0;
     const T* v0 = y0 + k;
     T* dx = dy;      // x_i - x0
@@ -84,14 +118,14 @@ class NewtonianStormerSubstep {
     }
     for (int s = 1; s < nsub; ++s) {
       for (int i = 0; i < k; ++i) xt[i] = x0[i] + dx[i];
-      force(xt, a);
+      force_(xt, a);
       for (int i = 0; i < k; ++i) {
         dv[i] += h * a[i];
         dx[i] += h * (v0[i] + dv[i]);
       }
     }
     for (int i = 0; i < k; ++i) xt[i] = x0[i] + dx[i];
-    force(xt, a);
+    force_(xt, a);
     for (int i = 0; i < k; ++i) dv[i] += h2 * a[i];
     evaluations += nsub;
   }
@@ -99,26 +133,29 @@ class NewtonianStormerSubstep {
   long long evaluations = 0;
 
  private:
-  // Single pass in double (fastest there); three passes in extended precision, where the
-  // independent sqrt/division chains of the pairs overlap (same bits either way).
-  void force(const T* x, T* a) {
-    if constexpr (std::is_same_v<T, double>) accelerations_in<D>(n_, m_, x, a);
-    else accelerations_in<D>(n_, m_, x, a, pairs_);
-  }
-  int n_ = 0;
-  const T* m_ = nullptr;
+  Force force_;
+  int k_ = 0;
   std::vector<T> a0_, a_, xt_;
-  PairWorkspace<T> pairs_;
+};
+
+// The Newtonian substep, y = (x[Dn], v[Dn]), D = 3 (or 2 for a planar system, see integrate_gbs).
+template <class T, int D = 3>
+class NewtonianStormerSubstep : public StormerSubstep<T, NewtonianForce<T, D>> {
+ public:
+  void setup(int n, const T* m) {
+    this->force().setup(n, m);
+    this->allocate();
+  }
 };
 
 namespace detail {
 
 // Automatic first step (the starting-step heuristic of HNW I, II.4 [memory], adapted): from the sizes of y0, f(y0) and of the change of f
 // over a small trial step, the step whose local error of order p would be about the tolerance.
-// Components with zero scale are skipped. Returns a magnitude.
-template <class T, int D>
-double initial_step_size(NewtonianStormerSubstep<T, D>& sub, const std::vector<T>& y, double rtol,
-                         double atol, int order, double span, int norm_count) {
+// Components with zero scale are skipped. Returns a magnitude. sub must have begun at y.
+template <class T, class Substep>
+double initial_step_size(Substep& sub, const std::vector<T>& y, double rtol, double atol, int order,
+                         double span, int norm_count) {
   const std::size_t k = y.size() / 2;
   const T* a0 = sub.start_acceleration();
   double d0 = 0, d1 = 0;
@@ -161,16 +198,71 @@ double initial_step_size(NewtonianStormerSubstep<T, D>& sub, const std::vector<T
 
 }  // namespace detail
 
+// What the driver integrates. A Problem provides
+//   using substep_type;  substep_type& substep();   // a symmetric substep (step_control.hpp)
+//   int dimension() const;                         // length of y
+//   int norm_count() const;                        // components the error RMS averages over
+//   int error_block() const; int error_stride() const;  // components the error norm covers
+//                                                  // (ErrorScale::block; 0, 0: all)
+//   void load(const State<T>& s, T* y);            // y from the state
+//   void store(const T* y, State<T>& s);           // the state from y
+//   double initial_step(const std::vector<T>& y, double rtol, double atol, int order,
+//                       double span);              // after substep().begin(y); a magnitude
+//   void accepted(T* y, T* comp);                  // after every accepted step (comp: the
+//                                                  // compensations, nullptr without)
+//   long long evaluations() const;                 // force evaluations so far
+// NewtonianProblem: y = (x[Dn], v[Dn]); for D = 2 the z parts (exactly zero) are left out.
+template <class T, int D>
+class NewtonianProblem {
+ public:
+  using substep_type = NewtonianStormerSubstep<T, D>;
+  explicit NewtonianProblem(const State<T>& s) : n_(s.n) { sub_.setup(n_, s.m.data()); }
+
+  substep_type& substep() { return sub_; }
+  int dimension() const { return 2 * D * n_; }
+  int norm_count() const { return 6 * n_; }  // always the full 6n components
+  int error_block() const { return 0; }
+  int error_stride() const { return 0; }
+
+  void load(const State<T>& s, T* y) const {
+    const int kd = D * n_;
+    for (int i = 0; i < n_; ++i)
+      for (int c = 0; c < D; ++c) {
+        y[D * i + c] = s.x[static_cast<std::size_t>(3 * i + c)];
+        y[kd + D * i + c] = s.v[static_cast<std::size_t>(3 * i + c)];
+      }
+  }
+  void store(const T* y, State<T>& s) const {
+    const int kd = D * n_;
+    for (int i = 0; i < n_; ++i)
+      for (int c = 0; c < D; ++c) {
+        s.x[static_cast<std::size_t>(3 * i + c)] = y[D * i + c];
+        s.v[static_cast<std::size_t>(3 * i + c)] = y[kd + D * i + c];
+      }
+  }
+  double initial_step(const std::vector<T>& y, double rtol, double atol, int order, double span) {
+    return detail::initial_step_size(sub_, y, rtol, atol, order, span, norm_count());
+  }
+  void accepted(T*, T*) {}
+  long long evaluations() const { return sub_.evaluations; }
+
+ private:
+  int n_;
+  substep_type sub_;
+};
+
 namespace detail {
 
-// The driver proper, for D = 3 or (planar systems) D = 2; arguments already validated.
-template <int D, class T, bool Compensated, class Observer>
-Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_times,
-              Observer&& on_output, const Options& opt, const StepControlTuning& tune, int rows,
-              std::chrono::steady_clock::time_point clock_start) {
+// The driver proper over a Problem (see above); arguments already validated (check_arguments).
+// rows: the number of tableau rows (Options::max_order resolved).
+template <class T, bool Compensated, class Problem, class Observer>
+Stats run_extrapolation(Problem& pb, State<T>& s, T& t, const T& t_end, const std::vector<T>& output_times,
+                        Observer&& on_output, const Options& opt, const StepControlTuning& tune, int rows,
+                        std::chrono::steady_clock::time_point clock_start) {
   using clock = std::chrono::steady_clock;
   using std::abs;
   using std::isfinite;
+  using Substep = typename Problem::substep_type;
   Stats st;
   auto finish = [&](Status status) {
     st.status = status;
@@ -178,33 +270,37 @@ Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_ti
     return st;
   };
   const bool forward = t_end > t;
+  const bool fixed = opt.fixed_step > 0;
 
   // ---- setup (all allocation happens here)
-  // y = (x, v) with D coordinates per body; for D = 2 the z parts (exactly zero) are left out.
   const int n = s.n;
-  const int kd = D * n;
-  const int dim = 2 * kd;
-  const int norm_count = 6 * n;  // the error norm always averages over the full 6n components
+  const int dim = pb.dimension();
+  const int norm_count = pb.norm_count();
   std::vector<T> y(static_cast<std::size_t>(dim));
   std::vector<T> comp(Compensated ? static_cast<std::size_t>(dim) : 0, T(0));
-  for (int i = 0; i < n; ++i)
-    for (int c = 0; c < D; ++c) {
-      y[static_cast<std::size_t>(D * i + c)] = s.x[static_cast<std::size_t>(3 * i + c)];
-      y[static_cast<std::size_t>(kd + D * i + c)] = s.v[static_cast<std::size_t>(3 * i + c)];
-    }
-  auto store = [&]() {
-    for (int i = 0; i < n; ++i)
-      for (int c = 0; c < D; ++c) {
-        s.x[static_cast<std::size_t>(3 * i + c)] = y[static_cast<std::size_t>(D * i + c)];
-        s.v[static_cast<std::size_t>(3 * i + c)] = y[static_cast<std::size_t>(kd + D * i + c)];
-      }
-  };
+  pb.load(s, y.data());
+  auto store = [&]() { pb.store(y.data(), s); };
 
-  NewtonianStormerSubstep<T, D> sub;
-  sub.setup(n, s.m.data());
-  ExtrapolationStepper<T, NewtonianStormerSubstep<T, D>> stepper;
-  stepper.setup(&sub, dim, opt.sequence, rows, opt.rtol, opt.atol, tune, norm_count);
+  Substep& sub = pb.substep();
+  ExtrapolationStepper<T, Substep> stepper;
+  // The fixed-step mode may use fewer than the controller's minimum of 3 rows.
+  stepper.setup(&sub, dim, opt.sequence, fixed ? std::max(rows, 3) : rows, opt.rtol, opt.atol, tune,
+                norm_count, pb.error_block(), pb.error_stride());
   OrderStepController& ctrl = stepper.controller();
+
+  // Stop condition: the state in double, for the escape test.
+  const bool check_escape = opt.stop == StopCondition::escape;
+  std::vector<double> md(check_escape ? static_cast<std::size_t>(n) : 0);
+  std::vector<double> xd(check_escape ? 3 * static_cast<std::size_t>(n) : 0), vd(xd.size());
+  for (std::size_t i = 0; i < md.size(); ++i) md[i] = to_double(s.m[i]);
+  auto escaped = [&]() {
+    store();
+    for (std::size_t i = 0; i < xd.size(); ++i) {
+      xd[i] = to_double(s.x[i]);
+      vd[i] = to_double(s.v[i]);
+    }
+    return escaping_body(n, md.data(), xd.data(), vd.data(), opt.distance_factor) >= 0;
+  };
 
   const double dir = forward ? 1.0 : -1.0;
   const double span = std::fabs(to_double(t_end - t));
@@ -219,13 +315,12 @@ Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_ti
   auto last_poll = clock_start;
 
   if (!stepper.start_at(y.data())) {
-    st.evaluations = sub.evaluations;
+    st.evaluations = pb.evaluations();
     return finish(Status::nonfinite);
   }
-  {
-    double h = opt.initial_step > 0
-                   ? opt.initial_step
-                   : initial_step_size(sub, y, opt.rtol, opt.atol, 2 * ctrl.target(), span, norm_count);
+  if (!fixed) {
+    double h = opt.initial_step > 0 ? opt.initial_step
+                                    : pb.initial_step(y, opt.rtol, opt.atol, 2 * ctrl.target(), span);
     h = std::min(h, span);
     ctrl.set_proposal(h);
     floor_scale = std::max(floor_scale, h);
@@ -242,9 +337,10 @@ Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_ti
     const T& target = next_out < n_out ? output_times[next_out] : t_end;
     T remaining = target - t;
     if (Compensated) remaining -= tc;
-    const double hmag = ctrl.proposal();
+    const double hmag = fixed ? opt.fixed_step : ctrl.proposal();
     T H;
     bool landing;
+    bool stepped = false;
     if ((forward && !(remaining > T(0))) || (!forward && !(remaining < T(0)))) {
       // Compensated time already at (or a rounding past) the target: land without a step.
       H = T(0);
@@ -259,7 +355,7 @@ Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_ti
 
     if (H != T(0)) {
       // ---- budgets, checked before each attempt
-      if (!landing && !(hmag >= frac * std::max(std::fabs(to_double(t)), floor_scale))) {
+      if (!fixed && !landing && !(hmag >= frac * std::max(std::fabs(to_double(t)), floor_scale))) {
         status = Status::step_underflow;
         break;
       }
@@ -283,7 +379,12 @@ Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_ti
       }
       ++attempts;
       const int k_before = ctrl.target();
-      if (!stepper.attempt(H, first || landing)) {
+      if (fixed) {
+        if (!stepper.fixed(H, rows)) {
+          status = Status::nonfinite;
+          break;
+        }
+      } else if (!stepper.attempt(H, first || landing)) {
         ++st.rejected;
         continue;
       }
@@ -295,11 +396,12 @@ Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_ti
         for (int i = 0; i < dim; ++i) y[static_cast<std::size_t>(i)] += dy[i];
       }
       ++st.steps;
+      stepped = true;
       first = false;
       if (landing) {
         // A step shortened to land says little about the natural step and order: keep them.
         const double hused = std::fabs(to_double(H));
-        if (hused < hmag) {
+        if (!fixed && hused < hmag) {
           ctrl.set_proposal(std::max(ctrl.proposal(), hmag));
           ctrl.set_target(std::max(ctrl.target(), k_before));
         }
@@ -307,6 +409,7 @@ Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_ti
         if (Compensated) compensated_add(t, tc, H);
         else t += H;
       }
+      pb.accepted(y.data(), Compensated ? comp.data() : nullptr);
       if (!stepper.start_at(y.data())) {
         if (landing) t = target;
         status = Status::nonfinite;
@@ -323,10 +426,72 @@ Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_ti
       }
       if (t == t_end) break;
     }
+    // ---- stop condition, every check_every accepted steps
+    if (check_escape && stepped && st.steps % opt.check_every == 0 && escaped()) {
+      status = Status::stop_condition;
+      break;
+    }
   }
   store();
-  st.evaluations = sub.evaluations;
+  st.evaluations = pb.evaluations();
   return finish(status);
+}
+
+// The Newtonian driver for D = 3 or (planar systems) D = 2; arguments already validated.
+template <int D, class T, bool Compensated, class Observer>
+Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_times,
+              Observer&& on_output, const Options& opt, const StepControlTuning& tune, int rows,
+              std::chrono::steady_clock::time_point clock_start) {
+  NewtonianProblem<T, D> pb(s);
+  return run_extrapolation<T, Compensated>(pb, s, t, t_end, output_times, on_output, opt, tune, rows,
+                                           clock_start);
+}
+
+// Validation shared by the entry points that use run_extrapolation (before any work): throws
+// std::invalid_argument naming the argument; returns the number of tableau rows. who: the name
+// of the entry point, for the messages.
+template <class T>
+int check_arguments(const char* who, const State<T>& s, const T& t, const T& t_end,
+                    const std::vector<T>& output_times, const Options& opt) {
+  using std::isfinite;
+  const std::string w(who);
+  auto fail = [&](const char* what) { throw std::invalid_argument(w + ": " + what); };
+  s.require_consistent();
+  if (s.n < 1) fail("need at least one body");
+  if (!isfinite(t) || !isfinite(t_end)) fail("t and t_end must be finite");
+  if (!(opt.rtol >= 0) || !(opt.atol >= 0) || !(opt.rtol > 0 || opt.atol > 0))
+    fail("rtol and atol must be >= 0 and not both zero");
+  if (opt.max_steps < 1) fail("max_steps must be >= 1");
+  if (!(opt.max_wall_time >= 0)) fail("max_wall_time must be >= 0");
+  if (!(opt.initial_step >= 0) || !std::isfinite(opt.initial_step)) fail("initial_step must be finite and >= 0");
+  if (!(opt.min_step_fraction >= 0)) fail("min_step_fraction must be >= 0");
+  if (!(opt.fixed_step >= 0) || !std::isfinite(opt.fixed_step)) fail("fixed_step must be finite and >= 0");
+  if (opt.stop != StopCondition::none && opt.stop != StopCondition::escape) fail("unknown stop condition");
+  if (opt.check_every < 1) fail("check_every must be >= 1");
+  if (!(opt.distance_factor >= 0) || !std::isfinite(opt.distance_factor))
+    fail("distance_factor must be finite and >= 0");
+  const int rows = opt.max_order > 0 ? opt.max_order : scalar_traits<T>::default_max_order();
+  if (rows < (opt.fixed_step > 0 ? 1 : 3) || rows > sequence_max_rows(opt.sequence))
+    fail("max_order out of range for the step sequence");
+  const bool forward = t_end > t;
+  T prev = t;
+  for (const T& q : output_times) {
+    if (!isfinite(q)) fail("output_times must be finite");
+    const bool ok = forward ? (q > prev || (q == prev && q != t)) && q <= t_end
+                            : (q < prev || (q == prev && q != t)) && q >= t_end;
+    if (!ok) fail("output_times must be sorted in the direction of integration and lie in (t, t_end]");
+    prev = q;
+  }
+  return rows;
+}
+
+// All z coordinates and z velocities exactly zero.
+template <class T>
+bool is_planar(const State<T>& s) {
+  bool planar = true;
+  for (std::size_t i = 0; i < static_cast<std::size_t>(s.n) && planar; ++i)
+    planar = s.x[3 * i + 2] == T(0) && s.v[3 * i + 2] == T(0);
+  return planar;
 }
 
 }  // namespace detail
@@ -337,12 +502,11 @@ Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_ti
 // Neumaier compensation for y += dy and t += H (precision "f64c"), so round-off does not
 // random-walk over many steps. Invalid arguments throw std::invalid_argument before any work;
 // every other way of stopping is reported in Stats::status (s and t then hold the last accepted
-// state).
+// state; with Options::stop, Status::stop_condition and t the time the condition was met).
 template <class T, bool Compensated = false, class Observer>
 Stats integrate_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_times,
                     Observer&& on_output, const Options& opt, const StepControlTuning& tune = {}) {
   using clock = std::chrono::steady_clock;
-  using std::isfinite;
   const auto clock_start = clock::now();
   Stats st;
   auto finish = [&](Status status) {
@@ -351,47 +515,14 @@ Stats integrate_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& out
     return st;
   };
 
-  // ---- validation (before any work)
-  s.require_consistent();
-  if (s.n < 1) throw std::invalid_argument("integrate_gbs: need at least one body");
-  if (!isfinite(t) || !isfinite(t_end))
-    throw std::invalid_argument("integrate_gbs: t and t_end must be finite");
-  if (!(opt.rtol >= 0) || !(opt.atol >= 0) || !(opt.rtol > 0 || opt.atol > 0))
-    throw std::invalid_argument("integrate_gbs: rtol and atol must be >= 0 and not both zero");
-  if (opt.max_steps < 1) throw std::invalid_argument("integrate_gbs: max_steps must be >= 1");
-  if (!(opt.max_wall_time >= 0))
-    throw std::invalid_argument("integrate_gbs: max_wall_time must be >= 0");
-  if (!(opt.initial_step >= 0) || !std::isfinite(opt.initial_step))
-    throw std::invalid_argument("integrate_gbs: initial_step must be finite and >= 0");
-  if (!(opt.min_step_fraction >= 0))
-    throw std::invalid_argument("integrate_gbs: min_step_fraction must be >= 0");
-  const int rows = opt.max_order > 0 ? opt.max_order : scalar_traits<T>::default_max_order();
-  if (rows < 3 || rows > sequence_max_rows(opt.sequence))
-    throw std::invalid_argument("integrate_gbs: max_order out of range for the step sequence");
-  {
-    const bool forward = t_end > t;
-    T prev = t;
-    for (const T& q : output_times) {
-      if (!isfinite(q)) throw std::invalid_argument("integrate_gbs: output_times must be finite");
-      const bool ok = forward ? (q > prev || (q == prev && q != t)) && q <= t_end
-                              : (q < prev || (q == prev && q != t)) && q >= t_end;
-      if (!ok)
-        throw std::invalid_argument(
-            "integrate_gbs: output_times must be sorted in the direction of integration and lie in "
-            "(t, t_end]");
-      prev = q;
-    }
-  }
+  const int rows = detail::check_arguments("integrate_gbs", s, t, t_end, output_times, opt);
   if (t == t_end) return finish(Status::success);
   if (!s.finite()) return finish(Status::nonfinite);
 
   // Planar fast path: with every z coordinate and z velocity exactly zero they stay exactly zero
   // (the z accelerations are exact zeros), so the system is integrated in two dimensions, with the
   // same bits as the three-dimensional path and about a third less work.
-  bool planar = true;
-  for (std::size_t i = 0; i < static_cast<std::size_t>(s.n) && planar; ++i)
-    planar = s.x[3 * i + 2] == T(0) && s.v[3 * i + 2] == T(0);
-  if (planar)
+  if (detail::is_planar(s))
     return detail::run_gbs<2, T, Compensated>(s, t, t_end, output_times, on_output, opt, tune, rows,
                                               clock_start);
   return detail::run_gbs<3, T, Compensated>(s, t, t_end, output_times, on_output, opt, tune, rows,

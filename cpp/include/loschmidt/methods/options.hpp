@@ -19,10 +19,17 @@ enum class StepSequence : int {
                     // accuracy (Kepler e = 0.9, f64 and dd; Pythagorean problem, dd).
 };
 
+// What ends a run early besides the budgets (Options::stop).
+enum class StopCondition : int {
+  none = 0,
+  escape = 1  // a body escapes (nbody/escape.hpp)
+};
+
 struct Options {
   // Scaled error norm: sc_i = atol + rtol * max(|y0_i|, |y1_i|) over positions and velocities;
-  // a step is accepted when the RMS of (error_i / sc_i) is at most 1. Components whose scale and
-  // error are both exactly zero (for instance z in a planar problem with atol = 0) are skipped.
+  // a step is accepted when the RMS over all 6n components of (error_i / sc_i) is at most 1. A
+  // component with exactly zero error contributes nothing (so z in a planar problem is harmless
+  // with atol = 0); a nonzero error on a zero scale counts as infinite.
   double rtol = 1e-12;
   double atol = 0.0;
   // Budget of attempted (accepted + rejected) macro steps.
@@ -43,6 +50,18 @@ struct Options {
   std::function<bool()> poll;
   // Substep sequence of the extrapolation tableau.
   StepSequence sequence = StepSequence::consecutive;
+  // Stop condition, tested in double every check_every accepted steps (gbs only): escape ends the
+  // run with Status::stop_condition (and t the time reached) as soon as a body escapes by the
+  // practical test of nbody/escape.hpp, with distance_factor its k.
+  StopCondition stop = StopCondition::none;
+  int check_every = 10;
+  double distance_factor = 10.0;
+  // Fixed-step mode (gbs only; for measuring the order of the method): when > 0, every step has
+  // this magnitude (the sign follows the direction; the step before each output time and t_end is
+  // shortened to land on it), uses exactly max_order rows of the tableau (any number >= 1 here;
+  // 0 means the default), and is always accepted: no error control, no order control, no step
+  // floor. initial_step is not used.
+  double fixed_step = 0.0;
 };
 
 struct Stats {

@@ -216,8 +216,10 @@ template <class T, class Substep>
 class ExtrapolationStepper {
  public:
   // norm_count: components the error norm averages over (0: dim); see ErrorScale::count.
+  // error_block, error_stride: which components the norm covers (0: all); see ErrorScale::block.
   void setup(Substep* substep, int dim, StepSequence seq, int max_rows, double rtol, double atol,
-             const StepControlTuning& tune, int norm_count = 0) {
+             const StepControlTuning& tune, int norm_count = 0, int error_block = 0,
+             int error_stride = 0) {
     sub_ = substep;
     dim_ = dim;
     rows_ = std::min(max_rows, sequence_max_rows(seq));
@@ -227,6 +229,8 @@ class ExtrapolationStepper {
     scale_.rtol = rtol;
     scale_.atol = atol;
     scale_.count = norm_count;
+    scale_.block = error_block;
+    scale_.stride = error_stride;
   }
 
   // Take y0 as the start of the next step: derivative data and error scale. False if non-finite.
@@ -266,6 +270,22 @@ class ExtrapolationStepper {
       if (j == k && ctrl_.hopeless(j, err)) return reject(j);
     }
     return reject(k + 1);
+  }
+
+  // Fixed-step mode (Options::fixed_step): rows 1..rows (1 <= rows <= max_rows()) at H with no
+  // error estimate and no controller bookkeeping; the increment is T_{rows,rows}. False when it
+  // is not finite.
+  bool fixed(const T& H, int rows) {
+    using std::isfinite;
+    for (int j = 1; j <= rows; ++j) {
+      sub_->increment(y0_, H, n_[static_cast<std::size_t>(j)], tableau_.slot(j));
+      tableau_.extrapolate(j);
+    }
+    used_ = rows;
+    const T* dy = tableau_.diagonal();
+    for (int i = 0; i < dim_; ++i)
+      if (!isfinite(dy[i])) return false;
+    return true;
   }
 
   const T* increment() const { return tableau_.diagonal(); }
