@@ -11,14 +11,20 @@ from . import ics, orbits, precision, units
 from .ensemble import Ensemble
 from .chaos import (
     Convergence,
+    Lyapunov,
     RoundTrip,
     Threshold,
     amplification,
     converge,
     growth,
     irreversibility_threshold,
+    lyapunov,
     roundtrip,
 )
+from . import batch, plots, report, store, sweep
+from .batch import BatchResult, integrate_batch, roundtrip_batch
+from .store import read_store
+from .sweep import Sweep, available_tasks, register_task
 from .outcome import DEFAULT_DISTANCE_FACTOR, OUTCOME_KINDS, BoundPair, Outcome, integrate_until_escape, outcome
 from .integrate import DEFAULT_TOLERANCE, METHODS, Result, Trajectory, integrate, phase_distance, phase_distances
 from .precision import PRECISIONS
@@ -53,6 +59,8 @@ __all__ = [
     "RoundTrip",
     "amplification",
     "growth",
+    "lyapunov",
+    "Lyapunov",
     "converge",
     "Convergence",
     "irreversibility_threshold",
@@ -63,4 +71,11 @@ __all__ = [
     "OUTCOME_KINDS",
     "DEFAULT_DISTANCE_FACTOR",
     "integrate_until_escape",
+    "integrate_batch",
+    "roundtrip_batch",
+    "BatchResult",
+    "Sweep",
+    "register_task",
+    "available_tasks",
+    "read_store",
 ]

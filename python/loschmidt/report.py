@@ -1,0 +1,297 @@
+"""A self-contained HTML page on one or more sweep stores: statistics, pictures, the settings.
+
+``write_report(stores, path)`` reads each store's manifest (the sweep definition: task, options,
+precision, chunk size, loschmidt version, ensemble) and its finished rows, and writes one HTML file
+with the statistics of each ensemble, the plots of :mod:`loschmidt.plots` embedded as base64 PNG
+(no other file is needed to view it), and the settings that produced the data. Stores made by the
+command line may carry ``cli-settings.json`` beside the manifest (a label, physical units, the
+configuration text); it is used when present.
+
+The helpers ``read_settings``, ``store_scale``, ``load_results`` and ``statistics`` are shared with
+the command line's ``plot`` and ``sweep`` commands.
+"""
+
+from __future__ import annotations
+
+import base64
+import datetime
+import html
+import json
+from pathlib import Path
+from typing import Any, Iterable, Sequence
+
+import numpy as np
+
+__all__ = ["write_report", "read_settings", "store_scale", "load_results", "statistics", "THRESHOLDS"]
+
+#: Round-trip distances at which the reversible fraction is tabulated.
+THRESHOLDS = (1e-4, 1e-6, 1e-8, 1e-10, 1e-12, 1e-14)
+
+SETTINGS_FILE = "cli-settings.json"
+
+
+# ---------------------------------------------------------------------------------------------------
+# reading stores
+
+
+def read_manifest(store: Any) -> dict:
+    """The sweep definition of a store (``ValueError`` when the path holds no store)."""
+    from .store import SweepStore
+
+    path = Path(store)
+    if not path.is_dir():
+        raise ValueError(f"store: {path} is not a directory")
+    manifest = SweepStore(path).read_manifest()
+    if manifest is None:
+        raise ValueError(f"store: {path} holds no manifest.json (not a sweep store)")
+    return manifest
+
+
+def read_settings(store: Any) -> dict:
+    """The command line's notes beside a store (label, units, config), or {}."""
+    p = Path(store) / SETTINGS_FILE
+    if not p.exists():
+        return {}
+    try:
+        data = json.loads(p.read_text())
+    except (OSError, ValueError):
+        return {}
+    return data if isinstance(data, dict) else {}
+
+
+def store_scale(settings: dict) -> Any:
+    """A ``units.Scale`` from a store's settings ``{"units": {"mass": ..., "length": ...}}``, or None."""
+    u = settings.get("units") if isinstance(settings, dict) else None
+    if not u:
+        return None
+    return make_scale(u.get("mass", 1.0), u.get("length", "pc"))
+
+
+def make_scale(mass: Any, length: Any) -> Any:
+    """``Scale`` from a mass in solar masses and a length "pc", "au" or a number of metres."""
+    from .units import AU, PARSEC, Scale
+
+    if isinstance(length, str):
+        names = {"pc": PARSEC, "parsec": PARSEC, "au": AU}
+        if length.lower() not in names:
+            raise ValueError(f"length: expected 'pc', 'au' or a number of metres, got {length!r}")
+        length = names[length.lower()]
+    return Scale(mass=mass, length=length)
+
+
+def store_columns(store: Any) -> dict[str, bool]:
+    """Column name -> True for plain columns, False for full-precision (limb) columns."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    from .store import SweepStore
+
+    files = list(SweepStore(store).finished().values())
+    if not files:
+        return {}
+    schema = pq.read_schema(files[0])
+    return {f.name: not (pa.types.is_fixed_size_list(f.type) or pa.types.is_list(f.type)) for f in schema}
+
+
+def load_results(store: Any, columns: Iterable[str] | None = None):
+    """The finished rows of a store as a pandas DataFrame: its plain columns, or those of ``columns``
+    that it has."""
+    from .store import read_store
+
+    read_manifest(store)
+    available = store_columns(store)
+    cols = [c for c, plain in available.items() if plain] if columns is None else [c for c in columns if c in available]
+    if not cols:
+        import pandas as pd
+
+        return pd.DataFrame()
+    return read_store(store, columns=cols)
+
+
+# ---------------------------------------------------------------------------------------------------
+# statistics
+
+
+def _success(df: Any) -> np.ndarray:
+    from .status import SUCCESS_STATUSES
+
+    if "status" not in df.columns:
+        return np.ones(len(df), dtype=bool)
+    return np.array([s in SUCCESS_STATUSES for s in df["status"]], dtype=bool)
+
+
+def statistics(df: Any, manifest: dict) -> list[tuple[str, str]]:
+    """(name, value) rows describing an ensemble's results, by task."""
+    d = manifest.get("definition", {})
+    members = d.get("ensemble", {}).get("members")
+    rows: list[tuple[str, str]] = []
+    n = len(df)
+    rows.append(("members finished", f"{n}" + (f" of {members}" if members is not None else "")))
+    ok = _success(df)
+    if "status" in df.columns:
+        counts = df["status"].value_counts()
+        rows.append(("statuses", ", ".join(f"{k}: {v}" for k, v in counts.items())))
+    task = d.get("task")
+    if "delta" in df.columns:
+        delta = np.asarray(df["delta"], dtype=float)
+        fin = ok & np.isfinite(delta)
+        for thr in THRESHOLDS:
+            k = int(np.count_nonzero(fin & (delta <= thr)))
+            rows.append((f"reversible, delta <= {thr:.0e}", f"{k} ({k / max(n, 1):.1%})"))
+        if fin.any():
+            lg = np.log10(np.maximum(delta[fin], 1e-300))
+            q = np.percentile(lg, [0, 10, 50, 90, 100])
+            rows.append(("log10 delta: min, 10%, median, 90%, max", ", ".join(f"{v:.1f}" for v in q)))
+    if "lifetime" in df.columns:
+        lt = np.asarray(df["lifetime"], dtype=float)
+        esc = ok & np.isfinite(lt)
+        opts = d.get("options", {})
+        tmax = opts.get("t_max")
+        rows.append(("escaped", f"{int(esc.sum())} ({esc.sum() / max(n, 1):.1%})"
+                     + (f" within t = {float(tmax):g}" if tmax is not None else "")))
+        if esc.any():
+            q = np.percentile(lt[esc], [10, 50, 90])
+            rows.append(("lifetime: 10%, median, 90% (N-body units)", ", ".join(f"{v:.3g}" for v in q)))
+        if "outcome" in df.columns:
+            rows.append(("outcomes at the end", ", ".join(f"{k}: {v}" for k, v in df["outcome"].value_counts().items())))
+    if "energy_error" in df.columns and ok.any():
+        e = np.asarray(df["energy_error"], dtype=float)[ok]
+        e = e[np.isfinite(e)]
+        if e.size:
+            rows.append(("relative energy error: median, max", f"{np.median(e):.2e}, {e.max():.2e}"))
+    if "evaluations" in df.columns:
+        rows.append(("force evaluations", f"{int(np.sum(df['evaluations'])):,}"))
+    if "wall_time" in df.columns:
+        rows.append(("engine time (all threads)", f"{float(np.sum(df['wall_time'])):.1f} s"))
+    if task and not any(r[0].startswith("reversible") for r in rows) and task == "roundtrip":
+        rows.append(("note", "no delta column"))
+    return rows
+
+
+# ---------------------------------------------------------------------------------------------------
+# the page
+
+
+_CSS = """
+body { font-family: system-ui, -apple-system, Segoe UI, Helvetica, Arial, sans-serif; max-width: 70em;
+       margin: 2em auto; padding: 0 1em; color: #222; line-height: 1.4; }
+h1 { font-size: 1.5em; } h2 { font-size: 1.2em; border-bottom: 1px solid #ccc; margin-top: 2em; }
+table { border-collapse: collapse; margin: 0.5em 0 1em 0; }
+td, th { border: 1px solid #ddd; padding: 0.25em 0.6em; text-align: left; vertical-align: top; }
+th { background: #f4f4f4; }
+img { max-width: 100%; height: auto; border: 1px solid #eee; margin: 0.5em 0; }
+pre { background: #f7f7f7; padding: 0.6em; overflow-x: auto; font-size: 0.85em; }
+.muted { color: #777; font-size: 0.9em; }
+"""
+
+
+def _img(fig: Any, alt: str) -> str:
+    from .plots import to_png_bytes
+
+    data = base64.b64encode(to_png_bytes(fig)).decode("ascii")
+    return f'<img alt="{html.escape(alt)}" src="data:image/png;base64,{data}">'
+
+
+def _table(rows: Sequence[tuple[str, str]], head: tuple[str, str] | None = None) -> str:
+    out = ["<table>"]
+    if head:
+        out.append(f"<tr><th>{html.escape(head[0])}</th><th>{html.escape(head[1])}</th></tr>")
+    for k, v in rows:
+        out.append(f"<tr><th>{html.escape(str(k))}</th><td>{html.escape(str(v))}</td></tr>")
+    out.append("</table>")
+    return "\n".join(out)
+
+
+def _settings_rows(manifest: dict) -> list[tuple[str, str]]:
+    d = manifest.get("definition", {})
+    rows = [("task", d.get("task", "?"))]
+    for k, v in (d.get("options") or {}).items():
+        if v is not None:
+            rows.append((f"option {k}", v))
+    ens = d.get("ensemble") or {}
+    rows.append(("ensemble", f"{ens.get('family', '?')}, {ens.get('members', '?')} members of "
+                             f"{ens.get('bodies', '?')} bodies"))
+    if ens.get("params"):
+        rows.append(("ensemble parameters", ", ".join(ens["params"])))
+    if ens.get("hash"):
+        rows.append(("ensemble content hash", ens["hash"]))
+    rows.append(("chunk size", d.get("chunk_size", "?")))
+    rows.append(("loschmidt version", d.get("loschmidt_version", "?")))
+    rows.append(("definition hash", manifest.get("definition_hash", "?")))
+    return rows
+
+
+def _label(store: Path, manifest: dict, settings: dict) -> str:
+    if settings.get("label"):
+        return str(settings["label"])
+    d = manifest.get("definition", {})
+    return f"{store.name} ({d.get('precision') or d.get('task')})"
+
+
+def write_report(stores: Any, path: Any, title: str | None = None, threshold: float = 1e-10) -> Path:
+    """Write the HTML report on ``stores`` (a path or a list of paths) to ``path``; returns it."""
+    from . import plots
+
+    paths = [Path(stores)] if isinstance(stores, (str, Path)) else [Path(s) for s in stores]
+    if not paths:
+        raise ValueError("stores: at least one store is needed")
+    entries = []
+    for p in paths:
+        manifest = read_manifest(p)
+        settings = read_settings(p)
+        df = load_results(p)
+        entries.append((p, manifest, settings, df))
+    scale = next((store_scale(s) for _p, _m, s, _d in entries if store_scale(s) is not None), None)
+    u = plots.axis_units(scale)
+
+    parts = []
+    heading = title or ("loschmidt report: " + ", ".join(p.name for p in paths))
+    parts.append(f"<h1>{html.escape(heading)}</h1>")
+    now = datetime.datetime.now(datetime.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+    from . import __version__
+
+    parts.append(f'<p class="muted">Written {now} by loschmidt {html.escape(str(__version__))}. '
+                 f"Reversible means the round trip returned within delta &le; {threshold:.0e} of the start "
+                 "(phase-space distance, N-body units).</p>")
+    if scale is not None:
+        parts.append(f'<p class="muted">Physical units: mass unit {scale.mass:g} solar masses, length unit '
+                     f"{scale.length:.6g} m ({html.escape(u.length_name)}), time unit {scale.time:.6g} s.</p>")
+
+    roundtrips = {_label(p, m, s): d for p, m, s, d in entries if "delta" in d.columns and len(d)}
+    lifetimes = {_label(p, m, s): d for p, m, s, d in entries if "lifetime" in d.columns and len(d)}
+    mapped = lambda frames: {k: v for k, v in frames.items() if "x" in v.columns and "y" in v.columns}  # noqa: E731
+    if roundtrips:
+        parts.append("<h2>Reversibility</h2>")
+        if mapped(roundtrips):
+            parts.append(_img(plots.reversibility_map(mapped(roundtrips), threshold=threshold, units=u),
+                              "map of log10 delta over the free-fall region"))
+        parts.append(_img(plots.delta_histogram(roundtrips, threshold=threshold), "histogram of log10 delta"))
+    if lifetimes:
+        parts.append("<h2>Lifetimes</h2>")
+        if mapped(lifetimes):
+            parts.append(_img(plots.lifetime_map(mapped(lifetimes), units=u), "map of lifetimes"))
+        parts.append(_img(plots.lifetime_histogram(lifetimes, units=u), "histogram of lifetimes"))
+
+    for p, manifest, settings, df in entries:
+        label = _label(p, manifest, settings)
+        parts.append(f"<h2>{html.escape(label)}</h2>")
+        parts.append(f'<p class="muted">store: {html.escape(str(p.resolve()))}</p>')
+        parts.append("<h3>Statistics</h3>")
+        parts.append(_table(statistics(df, manifest)))
+        parts.append("<h3>Settings</h3>")
+        parts.append(_table(_settings_rows(manifest)))
+        if settings.get("config"):
+            parts.append("<details><summary>configuration file</summary><pre>"
+                         f"{html.escape(str(settings['config']))}</pre></details>")
+        parts.append("<details><summary>manifest.json</summary><pre>"
+                     f"{html.escape(json.dumps(manifest, indent=2, sort_keys=True))}</pre></details>")
+
+    page = ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+            f"<title>{html.escape(heading)}</title>\n<style>{_CSS}</style>\n</head>\n<body>\n"
+            + "\n".join(parts) + "\n</body>\n</html>\n")
+    out = Path(path)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    tmp = out.with_name(f".{out.name}.tmp")
+    tmp.write_text(page, encoding="utf-8")
+    tmp.replace(out)
+    return out
