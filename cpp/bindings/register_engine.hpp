@@ -42,6 +42,27 @@ py::dict diagnostics_dict(const State<T>& s) {
   return d;
 }
 
+// The fields every integration entry point returns: final limbs, status, counters and the relative
+// energy error |E1 - E0| / |E0| computed in the working precision (absolute when E0 = 0).
+template <class T>
+py::dict run_summary(const State<T>& s, const T& t, const Stats& st, const T& e0) {
+  using std::abs;
+  const T e1 = energy(s);
+  const T de = e0 == T(0) ? abs(e1 - e0) : abs((e1 - e0) / e0);
+  const py::ssize_t n = s.n;
+  py::dict d;
+  d["positions"] = write_limbs<T>(s.x, {n, 3});
+  d["velocities"] = write_limbs<T>(s.v, {n, 3});
+  d["t"] = scalar_limbs(t);
+  d["status"] = static_cast<int>(st.status);
+  d["steps"] = st.steps;
+  d["rejected"] = st.rejected;
+  d["evaluations"] = st.evaluations;
+  d["wall_time"] = st.wall_time;
+  d["energy_error"] = to_double(de);
+  return d;
+}
+
 template <class T, bool Compensated>
 void register_engine(py::module_& m, const std::string& suffix) {
   m.def(("diagnostics_" + suffix).c_str(),
@@ -120,21 +141,9 @@ void register_engine(py::module_& m, const std::string& suffix) {
             }
           }
           if (poll.signalled()) throw py::error_already_set();
-          const T e1 = energy(s);
-          using std::abs;
-          const T de = e0 == T(0) ? abs(e1 - e0) : abs((e1 - e0) / e0);
-
-          py::dict d;
-          d["positions"] = write_limbs<T>(s.x, {n, 3});
-          d["velocities"] = write_limbs<T>(s.v, {n, 3});
-          d["t"] = scalar_limbs(t);
-          d["status"] = static_cast<int>(st.status);
-          d["steps"] = st.steps;
-          d["rejected"] = st.rejected;
-          d["evaluations"] = st.evaluations;
-          d["wall_time"] = st.wall_time;
+          py::dict d = run_summary(s, t, st, e0);
           // With post-Newtonian terms: the error of the energy bookkeeping (ChainReport).
-          d["energy_error"] = pn != 0 ? report.pn_energy_error : to_double(de);
+          if (pn != 0) d["energy_error"] = report.pn_energy_error;
           d["collision_pair"] = py::make_tuple(report.collision_i, report.collision_j);
           d["rechains"] = report.rechains;
           const auto count = static_cast<py::ssize_t>(traj_t.size());

@@ -60,20 +60,7 @@ void register_lyapunov(py::module_& m, const std::string& suffix) {
                                                     &report);
           }
           if (poll.signalled()) throw py::error_already_set();
-          const T e1 = energy(s);
-          using std::abs;
-          const T de = e0 == T(0) ? abs(e1 - e0) : abs((e1 - e0) / e0);
-
-          py::dict d;
-          d["positions"] = write_limbs<T>(s.x, {n, 3});
-          d["velocities"] = write_limbs<T>(s.v, {n, 3});
-          d["t"] = scalar_limbs(t);
-          d["status"] = static_cast<int>(st.status);
-          d["steps"] = st.steps;
-          d["rejected"] = st.rejected;
-          d["evaluations"] = st.evaluations;
-          d["wall_time"] = st.wall_time;
-          d["energy_error"] = to_double(de);
+          py::dict d = run_summary(s, t, st, e0);
           d["collision_pair"] = py::make_tuple(-1, -1);
           d["rechains"] = 0;
           const auto count = static_cast<py::ssize_t>(out_t.size());
