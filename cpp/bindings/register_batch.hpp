@@ -1,7 +1,9 @@
 // Batch entry points (batch.hpp), one registration per (scalar, compensation) pair:
 //   batch_integrate_<p>, batch_roundtrip_<p>(method, masses (M,N,k), positions (M,N,3,k),
 //   velocities (M,N,3,k), t_end (k,) or (M,k), rtol, atol, max_steps, max_wall_time, max_order,
-//   initial_step, threads, progress=None) -> dict of arrays.
+//   initial_step, threads, progress=None, radii=[], regularization=0, pn=0, c=[],
+//   merger_factor=8) -> dict of arrays. radii: none, N shared or M*N (row-major) values; the
+//   chain options are those of integrate_<p> and are read by method "chain" only.
 // The Python layer (loschmidt.batch) validates everything first. The GIL is released while the
 // workers run; the calling thread takes it back about every 50 ms to let Python run its signal
 // handlers (interrupt.hpp) and, every 100 ms or so, to call progress(done) (first
@@ -40,7 +42,8 @@ template <class T, bool Compensated>
 py::dict run(BatchTask task, const std::string& method, const limb_array& masses, const limb_array& positions,
              const limb_array& velocities, const limb_array& t_end, double rtol, double atol,
              long long max_steps, double max_wall_time, int max_order, double initial_step, int threads,
-             const py::object& progress) {
+             const py::object& progress, const std::vector<double>& radii, int regularization, int pn,
+             const std::vector<double>& c, double merger_factor) {
   constexpr int k = scalar_traits<T>::limbs;
   if (masses.ndim() != 3 || masses.shape(2) != k)
     throw py::value_error("masses: expected an (M, N, k) limb array with k = " + std::to_string(k));
@@ -57,6 +60,15 @@ py::dict run(BatchTask task, const std::string& method, const limb_array& masses
   if (in.t_end.size() != 1 && in.t_end.size() != static_cast<std::size_t>(count))
     throw py::value_error("t: expected one value or one per system");
   const BatchIntegrator<T> integrator = batch_integrator<T, Compensated>(method);
+  if (!(radii.empty() || radii.size() == static_cast<std::size_t>(n) ||
+        radii.size() == static_cast<std::size_t>(count * n)))
+    throw py::value_error("radii: expected one radius per body, shared or per system");
+  if (regularization < 0 || regularization > 1) throw py::value_error("regularization: unknown regularization");
+  if (pn < 0 || pn > pn_all) throw py::value_error("pn: unknown post-Newtonian orders");
+  if (method != "chain" && (pn != 0 || !radii.empty()))
+    throw py::value_error("pn, radii: post-Newtonian terms and radii need method 'chain'");
+  if (pn != 0 && c.size() != static_cast<std::size_t>(k))
+    throw py::value_error("c: expected the limbs of the speed of light");
 
   BatchSettings settings;
   settings.options.rtol = rtol;
@@ -66,6 +78,11 @@ py::dict run(BatchTask task, const std::string& method, const limb_array& masses
   settings.options.max_order = max_order;
   settings.options.initial_step = initial_step;
   settings.threads = threads;
+  settings.radii = radii;
+  settings.chain.regularization = static_cast<ChainRegularization>(regularization);
+  settings.chain.pn_orders = pn;
+  settings.chain.light_speed = c;
+  settings.chain.merger_factor = merger_factor;
 
   interrupt_poll poll;
   const bool report = !progress.is_none();
@@ -111,6 +128,9 @@ py::dict run(BatchTask task, const std::string& method, const limb_array& masses
   d["wall_time"] = column(out.wall_time);
   d["energy_error"] = rounded(out.energy_error);
   d["forward_energy_error"] = rounded(out.forward_energy_error);
+  d["pair_i"] = column(out.pair_i);
+  d["pair_j"] = column(out.pair_j);
+  d["rechains"] = column(out.rechains);
   if (task == BatchTask::roundtrip) {
     d["returned_positions"] = write_limbs<T>(out.back_x, {count, n, 3});
     d["returned_velocities"] = write_limbs<T>(out.back_v, {count, n, 3});
@@ -132,14 +152,17 @@ void register_batch(py::module_& m, const std::string& suffix) {
           [task](const std::string& method, const limb_array& masses, const limb_array& positions,
                  const limb_array& velocities, const limb_array& t_end, double rtol, double atol,
                  long long max_steps, double max_wall_time, int max_order, double initial_step, int threads,
-                 const py::object& progress) {
+                 const py::object& progress, const std::vector<double>& radii, int regularization, int pn,
+                 const std::vector<double>& c, double merger_factor) {
             return detail_batch::run<T, Compensated>(task, method, masses, positions, velocities, t_end, rtol, atol,
                                                      max_steps, max_wall_time, max_order, initial_step, threads,
-                                                     progress);
+                                                     progress, radii, regularization, pn, c, merger_factor);
           },
           py::arg("method"), py::arg("masses"), py::arg("positions"), py::arg("velocities"), py::arg("t_end"),
           py::arg("rtol"), py::arg("atol"), py::arg("max_steps"), py::arg("max_wall_time"), py::arg("max_order"),
-          py::arg("initial_step"), py::arg("threads"), py::arg("progress") = py::none());
+          py::arg("initial_step"), py::arg("threads"), py::arg("progress") = py::none(),
+          py::arg("radii") = std::vector<double>{}, py::arg("regularization") = 0, py::arg("pn") = 0,
+          py::arg("c") = std::vector<double>{}, py::arg("merger_factor") = 8.0);
   }
 }
 

@@ -23,7 +23,16 @@ import numpy as np
 from . import _core
 from . import precision as _p
 from .ensemble import Ensemble
-from .integrate import _check_method, _positive_or_none, _time_limbs, check_tolerance
+from .integrate import (
+    DEFAULT_MERGER_FACTOR,
+    PN_ORDERS,
+    REGULARIZATIONS,
+    _check_method,
+    _check_pn,
+    _positive_or_none,
+    _time_limbs,
+    check_tolerance,
+)
 from .status import STATUSES, SUCCESS_STATUSES
 from .system import System
 
@@ -48,11 +57,19 @@ def batch_options(
     max_wall_time: float | None = None,
     max_order: int | None = None,
     initial_step: float | None = None,
+    radii: Any = None,
+    regularization: str | None = None,
+    pn: Any = None,
+    c: Any = None,
+    merger_factor: float | None = None,
 ) -> dict:
     """Validate the options of a batch (as ``integrate`` does) and return them in a plain form.
 
     The result holds only JSON-friendly values (``t`` as its exact decimal string in the working
-    precision, unset budgets as None) and is what sweeps record in their manifest.
+    precision, unset budgets as None) and is what sweeps record in their manifest. The chain
+    method's options (``radii``, ``regularization``, ``pn``, ``c``, ``merger_factor``) appear only
+    when given, ``pn`` as a sorted list of orders and ``c`` as its exact decimal string in the
+    working precision, so definitions without them keep their form.
     """
     prec = _p.check_precision(precision)
     method = _check_method(method)
@@ -65,7 +82,7 @@ def batch_options(
     if order is not None and order < 2:
         raise ValueError(f"max_order: must be at least 2, got {max_order}")
     h0 = _positive_or_none(initial_step, "initial_step")
-    return {
+    out = {
         "t": str(_p.to_string(t_limbs, exact=True)),
         "precision": prec,
         "method": method,
@@ -76,6 +93,45 @@ def batch_options(
         "max_order": order,
         "initial_step": h0,
     }
+    out.update(_chain_options(method, prec, radii, regularization, pn, c, merger_factor))
+    return out
+
+
+def _check_radii(radii: Any, method: str) -> list:
+    if isinstance(radii, (str, bytes)):
+        raise TypeError("radii: expected numbers, one per body (shared) or an (M, N) array")
+    try:
+        r = np.asarray(radii, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise TypeError("radii: expected numbers, one per body (shared) or an (M, N) array") from None
+    if r.ndim not in (1, 2) or r.size == 0:
+        raise ValueError(f"radii: expected shape (N,) or (M, N), got {r.shape}")
+    if not np.all(np.isfinite(r)) or np.any(r < 0):
+        raise ValueError("radii: must be finite and non-negative")
+    if method != "chain":
+        raise ValueError(f"radii: collisions are detected by method='chain', got method={method!r}")
+    return r.tolist()
+
+
+def _chain_options(method: str, prec: str, radii: Any, regularization: Any, pn: Any, c: Any,
+                   merger_factor: Any) -> dict:
+    """The chain options that were given, validated, in JSON-friendly form."""
+    out: dict = {}
+    if radii is not None:
+        out["radii"] = _check_radii(radii, method)
+    if regularization is not None:
+        if regularization not in REGULARIZATIONS:
+            raise ValueError(f"regularization: expected one of {REGULARIZATIONS}, got {regularization!r}")
+        if method != "chain":
+            raise ValueError(f"regularization: only used by method='chain', got method={method!r}")
+        out["regularization"] = regularization
+    mask, c_limbs, factor = _check_pn(pn, c, merger_factor, method, prec)
+    if mask:
+        out["pn"] = [order for order, bit in sorted(PN_ORDERS.items()) if mask & bit]
+        out["c"] = str(_p.to_string(np.asarray(c_limbs), exact=True))
+        if merger_factor is not None:
+            out["merger_factor"] = factor
+    return out
 
 
 def _threads(threads: Any, count: int) -> int:
@@ -271,7 +327,7 @@ class BatchResult:
                 cols[name] = f[name]
         for name in ("energy_error",) + (("forward_energy_error",) if self.task == "roundtrip" else ()):
             cols[name] = f[name]
-        for name in ("steps", "rejected", "evaluations", "wall_time"):
+        for name in ("steps", "rejected", "evaluations", "wall_time", "pair_i", "pair_j", "rechains"):
             cols[name] = f[name]
         for name in _LIMB_FIELDS[self.task]:
             cols[name] = f[name]
@@ -282,28 +338,51 @@ class BatchResult:
 # entry points
 
 
-def _run(task: str, masses: Any, positions: Any, velocities: Any, t: Any, precision: str, method: str,
-         tol: Any, atol: Any, threads: Any, max_steps: Any, max_wall_time: Any, max_order: Any,
-         initial_step: Any, progress: Callable[[int], Any] | None) -> BatchResult:
+def _run(task: str, masses: Any, positions: Any, velocities: Any, t: Any, options: dict,
+         threads: Any, progress: Callable[[int], Any] | None) -> BatchResult:
     masses, positions, velocities, t = _split_args(masses, positions, velocities, t)
     if t is None:
         raise TypeError("t: the time span is required")
-    opts = batch_options(t, precision=precision, method=method, tol=tol, atol=atol, max_steps=max_steps,
-                         max_wall_time=max_wall_time, max_order=max_order, initial_step=initial_step)
+    opts = batch_options(t, **options)
     if progress is not None and not callable(progress):
         raise TypeError("progress: expected a callable taking the number of systems finished")
     prec = opts["precision"]
     ml, x, v = _members(masses, positions, velocities, prec)
     n_threads = _threads(threads, ml.shape[0])
     t_limbs = _time_limbs(opts["t"], prec, "t")
-    kernel = getattr(_core, f"batch_{task}_{prec}")
-    raw = kernel(
-        opts["method"], ml, x, v, t_limbs, opts["tol"], opts["atol"], opts["max_steps"] or 10**9,
-        opts["max_wall_time"] or math.inf, opts["max_order"] or 0, opts["initial_step"] or 0.0, n_threads,
-        progress,
-    )
+    given = opts.get("radii")
+    if isinstance(masses, Ensemble) and masses.radii is not None and opts["method"] == "chain":
+        if given is not None:
+            raise ValueError("radii: the ensemble has radii of its own; pass one or the other")
+        given = masses.radii  # as integrate takes a System's radii with method "chain"
+    raw = _execute(task, ml, x, v, opts, _radii_for(given, ml.shape[0], ml.shape[1]), n_threads, progress)
     fields = _fields(task, raw)
     return BatchResult(task, opts["method"], prec, opts["tol"], t_limbs, ml, x, v, fields)
+
+
+def _execute(task: str, ml: np.ndarray, x: np.ndarray, v: np.ndarray, opts: dict, radii: list, threads: int,
+             progress: Callable[[int], Any] | None) -> dict:
+    """The engine's batch kernel on validated limb arrays and ``batch_options`` output."""
+    prec = opts["precision"]
+    t_limbs = _time_limbs(opts["t"], prec, "t")
+    mask, c_limbs, factor = _check_pn(opts.get("pn"), opts.get("c"), opts.get("merger_factor"), opts["method"], prec)
+    kernel = getattr(_core, f"batch_{task}_{prec}")
+    return kernel(
+        opts["method"], ml, x, v, t_limbs, opts["tol"], opts["atol"], opts["max_steps"] or 10**9,
+        opts["max_wall_time"] or math.inf, opts["max_order"] or 0, opts["initial_step"] or 0.0, threads,
+        progress, radii=radii, regularization=REGULARIZATIONS.index(opts.get("regularization", REGULARIZATIONS[0])),
+        pn=mask, c=c_limbs, merger_factor=factor if mask else DEFAULT_MERGER_FACTOR,
+    )
+
+
+def _radii_for(radii: Any, count: int, n: int) -> list:
+    """The engine's flat radii: none, N shared, or M * N row-major."""
+    if radii is None:
+        return []
+    r = np.asarray(radii, dtype=np.float64)
+    if r.shape not in ((n,), (count, n)):
+        raise ValueError(f"radii: expected shape ({n},) or ({count}, {n}), got {r.shape}")
+    return r.ravel().tolist()
 
 
 def _fields(task: str, raw: dict) -> dict:
@@ -316,6 +395,9 @@ def _fields(task: str, raw: dict) -> dict:
         "evaluations": np.asarray(raw["evaluations"], dtype=np.int64),
         "wall_time": np.asarray(raw["wall_time"], dtype=np.float64),
         "energy_error": raw["energy_error"],
+        "pair_i": np.asarray(raw["pair_i"], dtype=np.int64),
+        "pair_j": np.asarray(raw["pair_j"], dtype=np.int64),
+        "rechains": np.asarray(raw["rechains"], dtype=np.int64),
     }
     if task == "integrate":
         f.update(t=raw["t"], positions=raw["positions"], velocities=raw["velocities"])
@@ -353,6 +435,11 @@ def integrate_batch(
     max_wall_time: float | None = None,
     max_order: int | None = None,
     initial_step: float | None = None,
+    radii: Any = None,
+    regularization: str | None = None,
+    pn: Any = None,
+    c: Any = None,
+    merger_factor: float | None = None,
     progress: Callable[[int], Any] | None = None,
 ) -> BatchResult:
     """Integrate M systems over the time span ``t`` on ``threads`` threads (default: all cores).
@@ -360,11 +447,17 @@ def integrate_batch(
     Call as ``integrate_batch(masses, positions, velocities, t)`` with masses (M, N) or (N,) and
     positions, velocities (M, N, 3) or (M, N, 2) (elements as ``System`` accepts them, converted
     exactly to ``precision``), or as ``integrate_batch(ensemble, t)``. The other options are those of
-    ``integrate`` and apply to every system (``max_wall_time`` per system). ``progress``, if given, is
-    called on the calling thread about every 100 ms with the number of systems finished.
+    ``integrate`` and apply to every system (``max_wall_time`` per system); ``radii`` (method
+    ``"chain"``) is one radius per body shared by all systems, or an (M, N) array. ``progress``, if
+    given, is called on the calling thread about every 100 ms with the number of systems finished.
+
+    With ``method="chain"``, ``pair_i``/``pair_j`` give the pair in contact (status ``collision``)
+    or merging (``merger``; post-Newtonian runs), -1 otherwise, and ``rechains`` the re-chainings.
     """
-    return _run("integrate", masses, positions, velocities, t, precision, method, tol, atol, threads,
-                max_steps, max_wall_time, max_order, initial_step, progress)
+    options = dict(precision=precision, method=method, tol=tol, atol=atol, max_steps=max_steps,
+                   max_wall_time=max_wall_time, max_order=max_order, initial_step=initial_step, radii=radii,
+                   regularization=regularization, pn=pn, c=c, merger_factor=merger_factor)
+    return _run("integrate", masses, positions, velocities, t, options, threads, progress)
 
 
 def roundtrip_batch(
@@ -382,6 +475,11 @@ def roundtrip_batch(
     max_wall_time: float | None = None,
     max_order: int | None = None,
     initial_step: float | None = None,
+    radii: Any = None,
+    regularization: str | None = None,
+    pn: Any = None,
+    c: Any = None,
+    merger_factor: float | None = None,
     progress: Callable[[int], Any] | None = None,
 ) -> BatchResult:
     """Round trips (Loschmidt tests) of M systems: forward ``t``, negate velocities, forward ``t``,
@@ -390,5 +488,7 @@ def roundtrip_batch(
     Arguments as for ``integrate_batch``; ``max_steps`` and ``max_wall_time`` apply to each leg. The
     return leg runs only when the forward leg succeeded.
     """
-    return _run("roundtrip", masses, positions, velocities, t, precision, method, tol, atol, threads,
-                max_steps, max_wall_time, max_order, initial_step, progress)
+    options = dict(precision=precision, method=method, tol=tol, atol=atol, max_steps=max_steps,
+                   max_wall_time=max_wall_time, max_order=max_order, initial_step=initial_step, radii=radii,
+                   regularization=regularization, pn=pn, c=c, merger_factor=merger_factor)
+    return _run("roundtrip", masses, positions, velocities, t, options, threads, progress)

@@ -1,4 +1,4 @@
-"""The built-in demonstration (``loschmidt demo``) and the sweep task "lifetime" it uses.
+"""The built-in demonstration (``loschmidt demo``).
 
 The scenario is our own invention: the nucleus of a made-up galaxy in which three black holes of a
 million solar masses each find themselves at rest, two of them a parsec apart and the third anywhere
@@ -15,14 +15,7 @@ cheaper in dd, while the regularized chain finishes every member (measured on a 
 t = 10: f64 gbs 78 of 102 finished, chain 102 of 102; dd gbs 100 of 102 within a budget of 5 s
 a member, chain 102 of 102 for about half the CPU time).
 
-Task "lifetime" (``register_lifetime_task()`` adds it to the sweep registry; options ``t_max``, ``interval`` (default 2), ``precision``
-(default "f64"), ``method`` (default "chain"), ``tol``, ``max_steps``, ``max_wall_time`` (per
-interval), ``distance_factor``): each member is integrated in spans of ``interval`` until
-``loschmidt.outcome`` reports an escape or a collision, or to ``t_max``
-(``loschmidt.integrate_until_escape``), on ``threads`` Python threads (the engine releases the GIL).
-Columns: ``lifetime`` (the end of the first span at which the escape test holds; NaN when none
-by ``t_max``), ``outcome`` (kind at the end), ``escaper`` (index of the first escaper, -1 if
-none), ``status``, ``t_reached``, ``energy_error``, ``steps``, ``evaluations``, ``wall_time``.
+The lifetimes come from the sweep task "lifetime" (``loschmidt.tasks``).
 """
 
 from __future__ import annotations
@@ -42,8 +35,6 @@ __all__ = [
     "SCALE_MASS",
     "THRESHOLD",
     "run_demo",
-    "run_lifetime",
-    "prepare_lifetime",
     "register_lifetime_task",
 ]
 
@@ -80,107 +71,12 @@ _PRECISION_NAMES = {"f64": "double", "f64c": "compensated double", "dd": "double
 
 
 # ---------------------------------------------------------------------------------------------------
-# the "lifetime" sweep task
-
-
-_LIFETIME_KEYS = ("t_max", "interval", "precision", "method", "tol", "max_steps", "max_wall_time", "distance_factor")
-
-
-def prepare_lifetime(**options: Any) -> dict:
-    """Validate the options of task "lifetime" (see the module docstring); JSON-friendly result."""
-    from . import precision as _p
-    from .batch import batch_options
-    from .outcome import DEFAULT_DISTANCE_FACTOR, _check_factor
-
-    unknown = sorted(set(options) - set(_LIFETIME_KEYS))
-    if unknown:
-        raise ValueError(f"options: unknown {unknown}; expected some of {list(_LIFETIME_KEYS)}")
-    if "t_max" not in options:
-        raise ValueError("t_max: the longest span to follow each member is required")
-    opts = batch_options(
-        options["t_max"], precision=options.get("precision", "f64"), method=options.get("method", "chain"),
-        tol=options.get("tol"), max_steps=options.get("max_steps"), max_wall_time=options.get("max_wall_time"),
-    )
-    interval = options.get("interval", 2)
-    for name, value in (("t_max", options["t_max"]), ("interval", interval)):
-        if isinstance(value, bool):
-            raise TypeError(f"{name}: expected a number, got bool")
-        if _p.exact_fraction(value, name) <= 0:
-            raise ValueError(f"{name}: must be positive, got {value!r}")
-    factor = options.get("distance_factor", DEFAULT_DISTANCE_FACTOR)
-    _check_factor(factor)
-    return {
-        "t_max": opts["t"],
-        "interval": str(_p.to_string(_p.to_limbs(interval, opts["precision"], name="interval"), exact=True)),
-        "precision": opts["precision"],
-        "method": opts["method"],
-        "tol": opts["tol"],
-        "max_steps": opts["max_steps"],
-        "max_wall_time": opts["max_wall_time"],
-        "distance_factor": float(factor),
-    }
-
-
-def _one_lifetime(system: Any, options: Mapping[str, Any]) -> tuple:
-    from .outcome import integrate_until_escape
-
-    kw = {"method": options["method"], "tol": options["tol"]}
-    if options.get("max_steps"):
-        kw["max_steps"] = options["max_steps"]
-    if options.get("max_wall_time"):
-        kw["max_wall_time"] = options["max_wall_time"]
-    res, found, lifetime = integrate_until_escape(
-        system, options["t_max"], interval=options["interval"], distance_factor=options["distance_factor"], **kw)
-    escaper = found.escaper if found.kind == "escape" and found.escaper is not None else -1
-    return (float("nan") if lifetime is None else lifetime, found.kind, escaper, res.status, res.t,
-            res.energy_error, res.steps, res.evaluations, res.wall_time)
-
-
-def run_lifetime(chunk: Any, options: Mapping[str, Any]) -> dict:
-    """Task "lifetime" on one chunk: the members on ``threads`` threads, in member order."""
-    import concurrent.futures as cf
-
-    from . import _core
-
-    threads = options.get("threads") or _cores()
-    progress: Callable[[int], Any] | None = options.get("progress")
-    prec = options["precision"]
-    rows: list[Any] = [None] * len(chunk)
-    pool = cf.ThreadPoolExecutor(max_workers=max(1, min(int(threads), len(chunk))))
-    try:
-        futures = {pool.submit(_one_lifetime, chunk.system(i, prec), options): i for i in range(len(chunk))}
-        done = 0
-        for fut in cf.as_completed(futures):
-            rows[futures[fut]] = fut.result()
-            done += 1
-            if progress is not None:
-                progress(done)
-    except BaseException:
-        _core.request_stop(True)  # stop the members still running on the other threads
-        pool.shutdown(wait=True, cancel_futures=True)
-        _core.request_stop(False)
-        raise
-    pool.shutdown(wait=True)
-    names = ("lifetime", "outcome", "escaper", "status", "t_reached", "energy_error", "steps", "evaluations",
-             "wall_time")
-    dtypes = (np.float64, object, np.int64, object, np.float64, np.float64, np.int64, np.int64, np.float64)
-    return {n: np.array([r[k] for r in rows], dtype=d) for k, (n, d) in enumerate(zip(names, dtypes))}
-
-
-def _cores() -> int:
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # pragma: no cover - not Linux
-        return os.cpu_count() or 1
+# the "lifetime" sweep task (it lives in loschmidt.tasks and is registered with the sweep module)
 
 
 def register_lifetime_task() -> None:
-    """Add task "lifetime" to the sweep registry (once; the command line and ``run_demo`` call it).
-    Workers need no registration: a sweep sends them the run function itself."""
-    from .sweep import available_tasks, register_task
-
-    if "lifetime" not in available_tasks():
-        register_task("lifetime", run_lifetime, prepare_lifetime)
+    """Make sure task "lifetime" is registered (importing ``loschmidt.sweep`` registers it)."""
+    from . import sweep  # noqa: F401
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -632,7 +632,9 @@ def integrate_until_escape(
     **integrate_options: Any,
 ):
     """Integrate ``system`` forward in chunks of ``interval`` and stop at the first chunk end where
-    :func:`outcome` says ``"escape"`` (or ``"collision"``), or at ``t_max``.
+    :func:`outcome` says ``"escape"`` (or ``"collision"``), or at ``t_max``; a run that the engine
+    ends at a contact or a post-Newtonian merger (status ``collision`` or ``merger``) stops there,
+    with the lifetime the exact time of the event.
 
     A plain-Python stand-in for an engine stop condition: the state is looked at only at chunk
     ends, so the lifetime found is the first chunk end after the escape test is met (resolution
@@ -683,6 +685,13 @@ def integrate_until_escape(
         rejected += result.rejected
         evaluations += result.evaluations
         wall += result.wall_time
+        if result.status in ("collision", "merger"):
+            # The engine stopped at the event itself (chain method with radii, or a post-Newtonian
+            # merger): the lifetime is the exact time reached, not the chunk end.
+            elapsed += _p.to_fraction(result.system.limbs("time")) - _p.to_fraction(state.limbs("time"))
+            state = result.system
+            found = outcome(state, distance_factor, radii)
+            break
         elapsed += span
         state = result.system
         found = outcome(state, distance_factor, radii)
@@ -693,5 +702,6 @@ def integrate_until_escape(
     result = dataclasses.replace(
         result, steps=steps, rejected=rejected, evaluations=evaluations, wall_time=wall, energy_error=float(err)
     )
-    lifetime = float(elapsed) if result.success and found.kind in ("escape", "collision") else None
+    event = result.status in ("collision", "merger") or found.kind in ("escape", "collision")
+    lifetime = float(elapsed) if result.success and event else None
     return result, found, lifetime

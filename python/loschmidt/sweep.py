@@ -8,7 +8,9 @@ The ensemble (an ``Ensemble``, or an iterable of ``Ensemble`` pieces of one fami
 into chunks of ``chunk_size`` consecutive members (pieces of a stream are re-cut, so the chunks do
 not depend on how the stream was split). Each chunk runs a *task*, a function
 ``run(chunk: Ensemble, options: dict) -> columns`` (a dict of (len(chunk), ...) arrays) looked up by
-name in a small registry (``register_task``); "roundtrip" and "integrate" are built in.
+name in a small registry (``register_task``); "roundtrip", "integrate", "lifetime" and
+"amplification" are built in (the last two: ``loschmidt.tasks``). The batch tasks take every option
+of ``integrate_batch``, the chain method's radii and post-Newtonian terms included.
 
 Where chunks run:
 - ``executor=None``: one after another on the local C++ thread pool (``threads`` per chunk, default
@@ -108,7 +110,8 @@ def _no_options(**options: Any) -> dict:
     return {}
 
 
-_BATCH_KEYS = ("t", "method", "precision", "tol", "atol", "max_steps", "max_wall_time", "max_order", "initial_step")
+_BATCH_KEYS = ("t", "method", "precision", "tol", "atol", "max_steps", "max_wall_time", "max_order", "initial_step",
+               "radii", "regularization", "pn", "c", "merger_factor")
 
 
 def _prepare_batch(**options: Any) -> dict:
@@ -117,6 +120,9 @@ def _prepare_batch(**options: Any) -> dict:
         raise ValueError(f"options: unknown {unknown}; expected some of {list(_BATCH_KEYS)}")
     if "t" not in options:
         raise ValueError("t: the time span is required (Sweep(..., t=...))")
+    if options.get("radii") is not None and np.ndim(options["radii"]) != 1:
+        raise ValueError("radii: a sweep takes one radius per body, shared by every member "
+                         "(per-member radii belong in the Ensemble)")
     return batch_options(**options)
 
 
@@ -138,6 +144,16 @@ def run_integrate(chunk: Ensemble, options: Mapping[str, Any]) -> dict:
 
 register_task("roundtrip", run_roundtrip, _prepare_batch)
 register_task("integrate", run_integrate, _prepare_batch)
+
+
+def _register_builtin_tasks() -> None:
+    from .tasks import prepare_amplification, prepare_lifetime, run_amplification, run_lifetime
+
+    register_task("lifetime", run_lifetime, prepare_lifetime, replace=True)
+    register_task("amplification", run_amplification, prepare_amplification, replace=True)
+
+
+_register_builtin_tasks()
 
 
 def _run_chunk(run: Callable, chunk: Ensemble, options: Mapping[str, Any]) -> dict:

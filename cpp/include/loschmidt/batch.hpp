@@ -50,19 +50,24 @@
 
 namespace loschmidt {
 
-// A single-system integrator with the contract of integrate_gbs (from t to t_end, no outputs).
+// A single-system integrator with the contract of integrate_gbs (from t to t_end, no outputs). The
+// chain options (regularization, radii, post-Newtonian terms, report) are read by method "chain"
+// only; the batch gives each worker its own copy, with the system's radii and its own report.
 template <class T>
-using BatchIntegrator = Stats (*)(State<T>&, T&, const T&, const Options&);
+using BatchIntegrator = Stats (*)(State<T>&, T&, const T&, const Options&, const ChainOptions&);
 
-// Method dispatch: the one place mapping a method name to its integrator (each with its default
-// method-specific options: chain without radii or post-Newtonian terms). Adding a method is one
+// Method dispatch: the one place mapping a method name to its integrator. Adding a method is one
 // line here and its header above.
 template <class T, bool Compensated>
 BatchIntegrator<T> batch_integrator(const std::string& method) {
   if (method == "gbs")
-    return [](State<T>& s, T& t, const T& e, const Options& o) { return integrate_gbs<T, Compensated>(s, t, e, o); };
+    return [](State<T>& s, T& t, const T& e, const Options& o, const ChainOptions&) {
+      return integrate_gbs<T, Compensated>(s, t, e, o);
+    };
   if (method == "chain")
-    return [](State<T>& s, T& t, const T& e, const Options& o) { return integrate_chain<T, Compensated>(s, t, e, o); };
+    return [](State<T>& s, T& t, const T& e, const Options& o, const ChainOptions& c) {
+      return integrate_chain<T, Compensated>(s, t, e, o, c);
+    };
   throw std::invalid_argument("method: unknown method '" + method + "' for a batch");
 }
 
@@ -100,10 +105,19 @@ struct BatchOutput {
   // roundtrip only: sqrt(sum |dx|^2 + |dv|^2), sqrt(sum |dx|^2), sqrt(sum |dv|^2) between the
   // returned state and the start; NaN unless both legs succeeded.
   std::vector<T> delta, delta_position, delta_velocity;
+  // Method "chain": the pair in contact (status collision) or merging (status merger), -1 when
+  // none, on the leg that ended the run; re-chainings summed over both legs.
+  std::vector<int> pair_i, pair_j;
+  std::vector<long long> rechains;
 };
 
 struct BatchSettings {
   Options options;  // per-system options; options.poll is replaced by the batch's stop flag
+  // Method "chain": per-system options; chain.radii and chain.report are replaced per system by
+  // radii below and a worker-local report.
+  ChainOptions chain;
+  // Body radii: empty (no collision test), n values shared by all systems, or count * n values.
+  std::vector<double> radii;
   int threads = 1;  // worker threads (at least 1, at most the number of systems)
   std::chrono::milliseconds monitor_interval{10};
 };
@@ -149,7 +163,8 @@ void add_stats(BatchOutput<T>& out, std::size_t i, const Stats& st) {
 // One system, start to finish; s is the worker's scratch state (n bodies).
 template <class T>
 void run_one(BatchTask task, BatchIntegrator<T> integrate, const BatchInput<T>& in, BatchOutput<T>& out,
-             std::size_t i, State<T>& s, const Options& opt) {
+             std::size_t i, State<T>& s, const Options& opt, ChainOptions& copt,
+             const std::vector<double>& radii) {
   const std::size_t n = static_cast<std::size_t>(in.n);
   const std::size_t k = 3 * n;
   const T* m0 = in.m.data() + i * n;
@@ -159,31 +174,47 @@ void run_one(BatchTask task, BatchIntegrator<T> integrate, const BatchInput<T>& 
   std::copy(x0, x0 + k, s.x.begin());
   std::copy(v0, v0 + k, s.v.begin());
   const T& t_end = in.t_end.size() == 1 ? in.t_end[0] : in.t_end[i];
+  if (radii.size() == n) copt.radii = radii;
+  else if (!radii.empty()) copt.radii.assign(radii.begin() + static_cast<std::ptrdiff_t>(i * n),
+                                             radii.begin() + static_cast<std::ptrdiff_t>((i + 1) * n));
+  ChainReport report;
+  copt.report = &report;
+  const bool pn = copt.pn_orders != 0;
 
   const T e0 = energy(s);
   T t = T(0);
-  const Stats fwd = integrate(s, t, t_end, opt);
+  const Stats fwd = integrate(s, t, t_end, opt, copt);
   std::copy(s.x.begin(), s.x.end(), out.x.begin() + static_cast<std::ptrdiff_t>(i * k));
   std::copy(s.v.begin(), s.v.end(), out.v.begin() + static_cast<std::ptrdiff_t>(i * k));
   out.t[i] = t;
   out.forward_status[i] = static_cast<int>(fwd.status);
   out.status[i] = static_cast<int>(fwd.status);
-  out.forward_energy_error[i] = relative_energy_error(energy(s), e0);
+  // With post-Newtonian terms the Newtonian energy is not conserved: the error of the energy
+  // bookkeeping (ChainReport::pn_energy_error), as integrate reports it.
+  out.forward_energy_error[i] = pn ? T(report.pn_energy_error) : relative_energy_error(energy(s), e0);
   out.energy_error[i] = out.forward_energy_error[i];
   out.steps[i] = out.rejected[i] = out.evaluations[i] = 0;
   out.wall_time[i] = 0.0;
+  out.pair_i[i] = report.collision_i;
+  out.pair_j[i] = report.collision_j;
+  out.rechains[i] = report.rechains;
   add_stats(out, i, fwd);
   if (task == BatchTask::integrate || fwd.status != Status::success) return;
 
   for (T& q : s.v) q = -q;
   T tb = T(0);
-  const Stats back = integrate(s, tb, t_end, opt);
+  report = ChainReport();
+  const Stats back = integrate(s, tb, t_end, opt, copt);
   for (T& q : s.v) q = -q;
   std::copy(s.x.begin(), s.x.end(), out.back_x.begin() + static_cast<std::ptrdiff_t>(i * k));
   std::copy(s.v.begin(), s.v.end(), out.back_v.begin() + static_cast<std::ptrdiff_t>(i * k));
   out.back_t[i] = tb;
   out.status[i] = static_cast<int>(back.status);
+  // The returned state against the start: valid for any time-reversible dynamics, PN included.
   out.energy_error[i] = relative_energy_error(energy(s), e0);
+  out.pair_i[i] = report.collision_i;
+  out.pair_j[i] = report.collision_j;
+  out.rechains[i] += report.rechains;
   add_stats(out, i, back);
   if (back.status == Status::success)
     roundtrip_distances(s.x.data(), s.v.data(), x0, v0, static_cast<int>(k), out.delta[i], out.delta_position[i],
@@ -212,6 +243,9 @@ void prepare_output(BatchTask task, const BatchInput<T>& in, BatchOutput<T>& out
   out.wall_time.assign(count, 0.0);
   out.energy_error.assign(count, T(0));
   out.forward_energy_error.assign(count, T(0));
+  out.pair_i.assign(count, -1);
+  out.pair_j.assign(count, -1);
+  out.rechains.assign(count, 0);
   if (task == BatchTask::roundtrip) {
     out.delta.assign(count, nan);
     out.delta_position.assign(count, nan);
@@ -235,6 +269,8 @@ BatchOutput<T> run_batch(BatchTask task, BatchIntegrator<T> integrate, const Bat
   if (!(in.t_end.size() == 1 || (in.t_end.size() == count && count > 0)))
     throw std::invalid_argument("batch: t_end must hold one value or one per system");
   if (integrate == nullptr) throw std::invalid_argument("batch: no integrator");
+  if (!(settings.radii.empty() || settings.radii.size() == n || settings.radii.size() == count * n))
+    throw std::invalid_argument("radii: expected none, one per body or one per body of every system");
 
   BatchOutput<T> out;
   detail::prepare_output(task, in, out);
@@ -254,12 +290,13 @@ BatchOutput<T> run_batch(BatchTask task, BatchIntegrator<T> integrate, const Bat
   auto worker = [&]() {
     Options opt = settings.options;
     opt.poll = [&stop]() { return stop.load(std::memory_order_relaxed); };
+    ChainOptions copt = settings.chain;
     State<T> s(in.n);
     while (!stop.load(std::memory_order_relaxed)) {
       const std::size_t i = next.fetch_add(1, std::memory_order_relaxed);
       if (i >= count) break;
       try {
-        detail::run_one(task, integrate, in, out, i, s, opt);
+        detail::run_one(task, integrate, in, out, i, s, opt, copt, settings.radii);
       } catch (...) {
         std::lock_guard<std::mutex> lock(mu);
         if (i < error_index) {
