@@ -170,3 +170,32 @@ def test_lifetime_task_ends_at_a_post_newtonian_merger(tmp_path) -> None:
     assert single.status == "merger"
     # chunk ends every 100 units change the steps, not the physics: the same merger time
     assert abs(df["lifetime"][0] - single.t) < 1e-3 * single.t, (df["lifetime"][0], single.t)
+
+
+def test_sweep_rows_become_systems_exactly(tmp_path) -> None:
+    ens = ics.free_fall_grid(3, 3)
+    t = "1.5"
+    rt = Sweep(ens, task="roundtrip", store=tmp_path / "rt", t=t, method="chain", precision="dd",
+               chunk_size=2).run(progress=False)
+    it = Sweep(ens[:3], task="integrate", store=tmp_path / "it", t="0.25", precision="qd", method="chain",
+               chunk_size=2).run(progress=False)
+    for i in range(len(ens)):
+        got = rt.systems(i)
+        start = ens.system(i, "dd")
+        assert _same(got["start"].limbs("positions"), start.limbs("positions"))
+        assert _same(got["start"].limbs("masses"), start.limbs("masses"))
+        forward = loschmidt.integrate(start, t, method="chain")
+        assert _same(got["forward"].limbs("positions"), forward.system.limbs("positions"))
+        assert _same(got["forward"].limbs("velocities"), forward.system.limbs("velocities"))
+        assert _same(got["forward"].limbs("time"), forward.system.limbs("time"))
+        back = loschmidt.integrate(forward.system.reversed(), t, method="chain").system.reversed()
+        assert _same(got["returned"].limbs("positions"), back.limbs("positions"))
+    for i in range(3):  # qd final states equal a fresh qd run
+        final = it.systems(i)["final"]
+        fresh = loschmidt.integrate(ens.system(i, "qd"), "0.25", method="chain")
+        assert final.precision == "qd"
+        assert _same(final.limbs("velocities"), fresh.system.limbs("velocities"))
+    with pytest.raises(ValueError, match="member"):
+        rt.systems(len(ens))
+    with pytest.raises(TypeError, match="member"):
+        rt.systems("0")

@@ -70,6 +70,29 @@ def batch_options(
     method's options (``radii``, ``regularization``, ``pn``, ``c``, ``merger_factor``) appear only
     when given, ``pn`` as a sorted list of orders and ``c`` as its exact decimal string in the
     working precision, so definitions without them keep their form.
+
+    Parameters
+    ----------
+    t : number or decimal string
+        Time span.
+    precision, method : str, optional
+        As for ``integrate_batch``.
+    tol, atol, max_steps, max_wall_time, max_order, initial_step : number, optional
+        As for ``integrate_batch``.
+    radii, regularization, pn, c, merger_factor : optional
+        The chain method's options, as for ``integrate_batch``.
+
+    Returns
+    -------
+    dict
+        The options in plain form.
+
+    Examples
+    --------
+    >>> from loschmidt.batch import batch_options
+    >>> o = batch_options("0.1", precision="f64")
+    >>> o["t"], o["tol"], o["max_steps"]
+    ('1.000000000000000055511151231257827021181583404541015625e-1', 1e-13, None)
     """
     prec = _p.check_precision(precision)
     method = _check_method(method)
@@ -244,7 +267,7 @@ class BatchResult:
     forward leg failed).
 
     Per system: ``status`` (names), ``steps``, ``rejected``, ``evaluations`` (int64), ``wall_time``
-    (seconds), ``energy_error`` (|E - E0|/|E0| at the end: for a round trip, of the returned state) and
+    (seconds), ``energy_error`` (``|E - E0| / |E0|`` at the end: for a round trip, of the returned state) and
     for a round trip ``forward_status``, ``forward_energy_error``, ``delta``, ``delta_position``,
     ``delta_velocity`` (distances of the returned state to the start in the working precision, rounded
     to float64; NaN unless both legs succeeded). Counts and times of a round trip add both legs.
@@ -292,8 +315,19 @@ class BatchResult:
 
     # -- systems -------------------------------------------------------------------------------------
     def systems(self, i: Any) -> dict:
-        """The states of system ``i`` as ``System`` objects: ``{"start", "final"}`` for integrate,
-        ``{"start", "forward", "returned"}`` for a round trip (``None`` where not reached)."""
+        """The states of one system as ``System`` objects.
+
+        Parameters
+        ----------
+        i : int
+            System index.
+
+        Returns
+        -------
+        dict
+            ``{"start", "final"}`` for integrate, ``{"start", "forward", "returned"}`` for a round
+            trip (None where not reached).
+        """
         if isinstance(i, (bool, np.bool_)) or not isinstance(i, numbers.Integral):
             raise TypeError(f"i: expected an integer, got {type(i).__name__}")
         if not -len(self) <= i < len(self):
@@ -317,8 +351,14 @@ class BatchResult:
 
     # -- table ---------------------------------------------------------------------------------------
     def to_table(self) -> dict:
-        """Columns, one row per system: scalars as (M,) arrays, full-precision fields as their limb
-        arrays (M, ..., k). (A sweep store keeps the latter as fixed-size lists, shape recorded.)"""
+        """Columns, one row per system.
+
+        Returns
+        -------
+        dict of str to numpy.ndarray
+            Scalars as (M,) arrays, full-precision fields as their limb arrays (M, ..., k). (A
+            sweep store keeps the latter as fixed-size lists, shape recorded.)
+        """
         f = self.fields
         cols: dict = {"status": np.asarray(f["status"], dtype=object)}
         if self.task == "roundtrip":
@@ -453,6 +493,58 @@ def integrate_batch(
 
     With ``method="chain"``, ``pair_i``/``pair_j`` give the pair in contact (status ``collision``)
     or merging (``merger``; post-Newtonian runs), -1 otherwise, and ``rechains`` the re-chainings.
+
+    Parameters
+    ----------
+    masses : array-like, shape (M, N) or (N,), or Ensemble
+        Masses (or the whole ensemble, followed by ``t``).
+    positions, velocities : array-like, shape (M, N, 3) or (M, N, 2)
+        Elements as ``System`` accepts them, converted exactly to ``precision``; omitted with an
+        Ensemble.
+    t : number or decimal string
+        Time span (of each leg, for a round trip).
+    method : {"gbs", "chain"}, optional
+        Integration method (default ``"gbs"``).
+    precision : {"f64", "f64c", "dd", "qd"}, optional
+        Working precision (default ``"dd"``).
+    tol, atol : float, optional
+        Relative and absolute tolerances (default: the precision's ``DEFAULT_TOLERANCE``).
+    threads : int, optional
+        C++ threads (default: all cores, at most one per system).
+    max_steps : int, optional
+        Budget of steps per system.
+    max_wall_time : float, optional
+        Budget of seconds per system.
+    max_order : int, optional
+        Highest extrapolation column.
+    initial_step : float, optional
+        First step size.
+    radii : array-like, shape (N,) or (M, N), optional
+        Body radii (method ``"chain"``: status ``collision`` on contact); default the Ensemble's own.
+    regularization : {"logarithmic", "time_transformed"}, optional
+        Time transformation of the chain method.
+    pn : tuple of {1, 2, 2.5}, optional
+        Post-Newtonian terms (method ``"chain"``), as for ``integrate``.
+    c : number or decimal string, optional
+        Speed of light in N-body units; required with ``pn``.
+    merger_factor : float, optional
+        Merger distance in summed Schwarzschild radii (default 8), with ``pn``.
+    progress : callable, optional
+        Called on the calling thread about every 100 ms with the number of systems finished.
+
+    Returns
+    -------
+    BatchResult
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> b = loschmidt.integrate_batch([3, 4, 5], [[[1, 3], [-2, -1], [1, -1]]] * 2,
+    ...                               [[[0, 0]] * 3] * 2, 10, method="chain", threads=1)
+    >>> b.status
+    array(['success', 'success'], dtype=object)
+    >>> b.systems(1)["final"] == loschmidt.integrate(loschmidt.ics.pythagorean(), 10, method="chain").system
+    True
     """
     options = dict(precision=precision, method=method, tol=tol, atol=atol, max_steps=max_steps,
                    max_wall_time=max_wall_time, max_order=max_order, initial_step=initial_step, radii=radii,
@@ -487,6 +579,59 @@ def roundtrip_batch(
 
     Arguments as for ``integrate_batch``; ``max_steps`` and ``max_wall_time`` apply to each leg. The
     return leg runs only when the forward leg succeeded.
+
+    Parameters
+    ----------
+    masses : array-like, shape (M, N) or (N,), or Ensemble
+        Masses (or the whole ensemble, followed by ``t``).
+    positions, velocities : array-like, shape (M, N, 3) or (M, N, 2)
+        Elements as ``System`` accepts them, converted exactly to ``precision``; omitted with an
+        Ensemble.
+    t : number or decimal string
+        Time span (of each leg, for a round trip).
+    method : {"gbs", "chain"}, optional
+        Integration method (default ``"gbs"``).
+    precision : {"f64", "f64c", "dd", "qd"}, optional
+        Working precision (default ``"dd"``).
+    tol, atol : float, optional
+        Relative and absolute tolerances (default: the precision's ``DEFAULT_TOLERANCE``).
+    threads : int, optional
+        C++ threads (default: all cores, at most one per system).
+    max_steps : int, optional
+        Budget of steps per system and leg.
+    max_wall_time : float, optional
+        Budget of seconds per system and leg.
+    max_order : int, optional
+        Highest extrapolation column.
+    initial_step : float, optional
+        First step size.
+    radii : array-like, shape (N,) or (M, N), optional
+        Body radii (method ``"chain"``: status ``collision`` on contact); default the Ensemble's own.
+    regularization : {"logarithmic", "time_transformed"}, optional
+        Time transformation of the chain method.
+    pn : tuple of {1, 2, 2.5}, optional
+        Post-Newtonian terms (method ``"chain"``), as for ``integrate``.
+    c : number or decimal string, optional
+        Speed of light in N-body units; required with ``pn``.
+    merger_factor : float, optional
+        Merger distance in summed Schwarzschild radii (default 8), with ``pn``.
+    progress : callable, optional
+        Called on the calling thread about every 100 ms with the number of systems finished.
+
+    Returns
+    -------
+    BatchResult
+        With ``delta``, ``delta_position``, ``delta_velocity``, ``forward_status`` per system.
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> ens = loschmidt.ics.free_fall_grid(3, 5)
+    >>> b = loschmidt.roundtrip_batch(ens, 1, method="chain", threads=2)
+    >>> len(b), bool(b.success.all()), bool((b.delta < 1e-20).all())
+    (11, True, True)
+    >>> float(b.delta[0]) == loschmidt.roundtrip(ens.system(0), 1, method="chain").delta
+    True
     """
     options = dict(precision=precision, method=method, tol=tol, atol=atol, max_steps=max_steps,
                    max_wall_time=max_wall_time, max_order=max_order, initial_step=initial_step, radii=radii,

@@ -1,8 +1,10 @@
 """Sweeps: one task over every member of a (possibly huge) ensemble, in chunks, into a resumable store.
 
->>> sweep = Sweep(loschmidt.ics.free_fall_grid(200, 200), task="roundtrip", store="ff.sweep", t=100)
->>> sweep.run()                      # Ctrl-C, a crash or SIGKILL: run again to resume
->>> df = sweep.results()             # pandas DataFrame, one row per member, in member order
+::
+
+    sweep = Sweep(loschmidt.ics.free_fall_grid(200, 200), task="roundtrip", store="ff.sweep", t=100)
+    sweep.run()                      # Ctrl-C, a crash or SIGKILL: run again to resume
+    df = sweep.results()             # pandas DataFrame, one row per member, in member order
 
 The ensemble (an ``Ensemble``, or an iterable of ``Ensemble`` pieces of one family, streamed) is cut
 into chunks of ``chunk_size`` consecutive members (pieces of a stream are re-cut, so the chunks do
@@ -13,6 +15,7 @@ name in a small registry (``register_task``); "roundtrip", "integrate", "lifetim
 of ``integrate_batch``, the chain method's radii and post-Newtonian terms included.
 
 Where chunks run:
+
 - ``executor=None``: one after another on the local C++ thread pool (``threads`` per chunk, default
   all cores);
 - a ``concurrent.futures.Executor`` (threads or processes) or a ``dask.distributed.Client``: up to
@@ -28,9 +31,12 @@ with ``ValueError``; an unwritable store fails before any work. Results are the 
 the executor, thread count or number of interruptions (``wall_time`` aside, and unless a wall-clock
 budget was hit).
 
-Ctrl-C: the first stops handing out chunks and lets the running ones finish and be written (a chunk
-on the local pool runs to its end), then raises ``KeyboardInterrupt``; a second Ctrl-C aborts the
-running chunks at once. Every finished chunk is kept either way.
+Ctrl-C raises ``KeyboardInterrupt`` within a fraction of a second (the engine polls for signals
+about every 50 ms): every chunk already written is kept, the running chunks are dropped (never
+half-written: each file is written to a temporary name and renamed) and run again on resume, so at
+most ``chunk_size`` members per worker are recomputed. On a ``concurrent.futures`` executor, chunks
+already running in its workers cannot be cancelled and run to their end there, unrecorded; a Dask
+client cancels them.
 """
 
 from __future__ import annotations
@@ -64,7 +70,17 @@ class TaskSpec:
     """A sweep task: ``run(chunk, options) -> columns``; ``prepare(**options) -> options`` validates
     the user's options once, before any work, and returns them JSON-friendly (they are hashed into
     the store's manifest; a ``"precision"`` entry, if any, is recorded as the sweep's precision).
-    Both must be importable module-level functions when chunks run in other processes."""
+    Both must be importable module-level functions when chunks run in other processes.
+
+    Attributes
+    ----------
+    name : str
+        The task's name in the registry.
+    run : callable
+        ``run(chunk: Ensemble, options: dict) -> dict of (len(chunk), ...) arrays``.
+    prepare : callable
+        ``prepare(**options) -> dict``.
+    """
 
     name: str
     run: Callable[[Ensemble, dict], Mapping[str, np.ndarray]]
@@ -78,7 +94,34 @@ RUNTIME_OPTIONS = ("threads", "progress")
 
 
 def register_task(name: str, run: Callable, prepare: Callable | None = None, *, replace: bool = False) -> TaskSpec:
-    """Add a task to the registry (``prepare`` defaults to accepting no options)."""
+    """Add a task to the registry.
+
+    Parameters
+    ----------
+    name : str
+        An identifier.
+    run : callable
+        ``run(chunk, options) -> columns`` (see ``TaskSpec``); a module-level function when chunks
+        run in other processes.
+    prepare : callable, optional
+        ``prepare(**options) -> options``: validation before any work (default: no options).
+    replace : bool, optional
+        Replace a task of the same name (default: refuse with ``ValueError``).
+
+    Returns
+    -------
+    TaskSpec
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> import loschmidt
+    >>> def energies(chunk, options):
+    ...     return {"energy": chunk.energy()}
+    >>> spec = loschmidt.register_task("doc_energies", energies, replace=True)
+    >>> "doc_energies" in loschmidt.available_tasks()
+    True
+    """
     if not isinstance(name, str) or not name.isidentifier():
         raise ValueError(f"name: expected an identifier, got {name!r}")
     if not callable(run) or (prepare is not None and not callable(prepare)):
@@ -91,7 +134,14 @@ def register_task(name: str, run: Callable, prepare: Callable | None = None, *, 
 
 
 def available_tasks() -> tuple[str, ...]:
-    """Names of the registered tasks."""
+    """Names of the registered tasks.
+
+    Returns
+    -------
+    tuple of str
+        Sorted names (``"amplification"``, ``"integrate"``, ``"lifetime"``, ``"roundtrip"`` and any
+        added by ``register_task``).
+    """
     return tuple(sorted(_TASKS))
 
 
@@ -275,8 +325,8 @@ class _Source:
 
 
 class _StopRequest:
-    """While active (main thread only), a first SIGINT only asks the sweep to stop after the running
-    chunks; a second raises KeyboardInterrupt as usual."""
+    """While active (main thread only), SIGINT raises KeyboardInterrupt at once, as usual, after
+    saying what is kept; ``requested`` records that it came."""
 
     def __init__(self, say: Callable[[str], None]) -> None:
         self.requested = False
@@ -284,10 +334,10 @@ class _StopRequest:
         self._old: Any = None
 
     def _handler(self, signum: int, frame: Any) -> None:
-        if self.requested:
-            raise KeyboardInterrupt
-        self.requested = True
-        self._say("Stopping after the running chunks (Ctrl-C again to abort them now)...")
+        if not self.requested:
+            self.requested = True
+            self._say("Stopping: every finished chunk is kept; the running ones are dropped and rerun on resume.")
+        raise KeyboardInterrupt
 
     def __enter__(self) -> "_StopRequest":
         if threading.current_thread() is threading.main_thread():
@@ -337,7 +387,8 @@ class Sweep:
         The initial conditions; an iterable is streamed (memory holds about one chunk of it) and can
         be run once per Sweep object.
     task : str
-        A registered task: ``"roundtrip"`` or ``"integrate"`` built in (``available_tasks()``).
+        A registered task (``available_tasks()``): ``"roundtrip"``, ``"integrate"``,
+        ``"lifetime"`` and ``"amplification"`` are built in.
     store : path
         Directory of the store (created if needed).
     chunk_size : int
@@ -354,6 +405,19 @@ class Sweep:
         The task's options; for "roundtrip" and "integrate": ``t`` (required), ``method``,
         ``precision`` (default "dd"), ``tol``, ``atol``, ``max_steps``, ``max_wall_time``,
         ``max_order``, ``initial_step`` as for ``roundtrip_batch``.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> import loschmidt
+    >>> ens = loschmidt.ics.free_fall_grid(3, 5)
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     sweep = loschmidt.Sweep(ens, task="roundtrip", store=os.path.join(d, "ff"), chunk_size=4,
+    ...                             t=1, precision="f64", method="chain")
+    ...     df = sweep.run(progress=False).results()
+    ...     done = sweep.status()
+    >>> len(df), done["chunks_finished"], list(df.columns[:5])
+    (11, 3, ['member', 'ix', 'iy', 'x', 'y'])
     """
 
     def __init__(
@@ -398,7 +462,14 @@ class Sweep:
 
     # -- progress ------------------------------------------------------------------------------------
     def status(self) -> dict:
-        """Chunks and members finished so far (and the totals where known)."""
+        """Progress of the sweep.
+
+        Returns
+        -------
+        dict
+            ``chunks_finished``, ``chunks``, ``members_finished``, ``members`` (totals None where
+            unknown, as for a stream).
+        """
         done = self.store.finished()
         rows = sum(self.store.chunk_info(i)["rows"] for i in done)
         chunks = None if self._total is None else -(-self._total // self.chunk_size)
@@ -406,7 +477,18 @@ class Sweep:
 
     # -- running -------------------------------------------------------------------------------------
     def run(self, progress: bool = True) -> "Sweep":
-        """Run every chunk not yet in the store; returns the Sweep (``.results()`` then reads it)."""
+        """Run every chunk not yet in the store.
+
+        Parameters
+        ----------
+        progress : bool, optional
+            Show a progress bar on standard error (default True).
+
+        Returns
+        -------
+        Sweep
+            This sweep (``.results()`` then reads the store).
+        """
         self.store.open(self.definition)
         self.store.remove_stale_temporaries()
         finished = self.store.finished()
@@ -423,10 +505,10 @@ class Sweep:
                     self._run_local(todo, bar, stop)
                 else:
                     self._run_pool(todo, bar, stop)
+        except KeyboardInterrupt:
+            raise KeyboardInterrupt("sweep stopped by Ctrl-C; finished chunks are kept, run again to resume") from None
         finally:
             bar.close()
-        if stop.requested:
-            raise KeyboardInterrupt("sweep stopped by Ctrl-C; finished chunks are kept, run again to resume")
         return self
 
     def _pending(self, finished: Mapping[int, Any]) -> Iterator[tuple[int, int, Ensemble, str]]:
@@ -531,13 +613,96 @@ class Sweep:
 
     # -- results -------------------------------------------------------------------------------------
     def results(self, format: str = "pandas", columns: Iterable[str] | None = None) -> Any:
-        """Rows of every finished chunk in member order: a pandas DataFrame, or a ``pyarrow.Table``
-        with ``format="arrow"``. Full-precision columns hold flattened limbs (``limbs``)."""
+        """Rows of every finished chunk, in member order.
+
+        Parameters
+        ----------
+        format : {"pandas", "arrow"}, optional
+            A pandas DataFrame (default) or a ``pyarrow.Table``.
+        columns : iterable of str, optional
+            Columns to read (default all).
+
+        Returns
+        -------
+        pandas.DataFrame or pyarrow.Table
+            Full-precision columns hold flattened limbs (``limbs`` rebuilds them).
+        """
         return _convert(self.store.read(columns), format)
 
     def limbs(self, name: str) -> np.ndarray:
-        """A full-precision column of the finished rows as an array (rows, ..., k)."""
+        """A full-precision column of the finished rows.
+
+        Parameters
+        ----------
+        name : str
+            A limb column (``"returned_positions"`` ...).
+
+        Returns
+        -------
+        numpy.ndarray
+            Shape (rows, ..., k).
+        """
         return _limbs(self.store.read([name]), name)
+
+    def systems(self, member: int) -> dict:
+        """The stored states of one finished member as ``System`` objects, exactly.
+
+        Parameters
+        ----------
+        member : int
+            Index of a member in a finished chunk.
+
+        Returns
+        -------
+        dict
+            ``{"start": System}`` (the initial conditions, whose float64 values are exact in
+            every precision, with the ensemble's radii if any) plus, when the task stored them, the
+            full-precision states: ``"final"`` (tasks "integrate" and "amplification": columns ``t``,
+            ``positions``, ``velocities``), or ``"forward"`` and ``"returned"`` (task "roundtrip";
+            None where the leg did not run). Integrating ``start`` again with the sweep's options
+            gives these states bit for bit.
+        """
+        from .system import System
+
+        if isinstance(member, (bool, np.bool_)) or not isinstance(member, numbers.Integral):
+            raise TypeError(f"member: expected an integer, got {type(member).__name__}")
+        index = int(member) // self.chunk_size
+        if member < 0 or index not in self.store.finished():
+            raise ValueError(f"member: {member} is not in a finished chunk of this store")
+        import pyarrow.parquet as pq
+
+        table = pq.read_table(self.store.chunk_path(index))
+        rows = table.column("member").to_numpy()
+        hit = np.nonzero(rows == member)[0]
+        if len(hit) != 1:
+            raise ValueError(f"member: {member} is not in a finished chunk of this store")
+        row = table.slice(int(hit[0]), 1)
+        prec = self.options.get("precision") or "dd"
+        names = set(row.column_names)
+
+        def col(name: str) -> np.ndarray:
+            return _limbs(row, name)[0] if name in names else None
+
+        radii = col("start_radii")
+        out = {"start": System(col("start_masses"), col("start_positions"), col("start_velocities"),
+                               precision=prec, radii=radii)}
+
+        def state(t: str | None, x: str, v: str) -> System | None:
+            if x not in names:
+                return None
+            px, vx = col(x), col(v)
+            if not (np.all(np.isfinite(px)) and np.all(np.isfinite(vx))):
+                return None
+            return System.from_limbs(out["start"].limbs("masses"), px, vx, prec, radii=radii,
+                                     time=None if t is None else col(t), check=False)
+
+        if "forward_positions" in names:
+            out["forward"] = state("forward_t", "forward_positions", "forward_velocities")
+            # comparable with the start (as BatchResult.systems gives it): time 0
+            out["returned"] = state(None, "returned_positions", "returned_velocities")
+        elif "positions" in names:
+            out["final"] = state("t", "positions", "velocities")
+        return out
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -78,7 +78,18 @@ _LIFETIME_KEYS = ("t_max", "interval", "precision", "method", "tol", "max_steps"
 
 
 def prepare_lifetime(**options: Any) -> dict:
-    """Validate the options of task "lifetime" (see the module docstring); JSON-friendly result."""
+    """Validate the options of task "lifetime" (see the module docstring).
+
+    Parameters
+    ----------
+    **options
+        The task's options (see the module docstring).
+
+    Returns
+    -------
+    dict
+        The options, validated and JSON-friendly (hashed into the store's manifest).
+    """
     from .outcome import DEFAULT_DISTANCE_FACTOR, _check_factor
 
     _unknown(options, _LIFETIME_KEYS)
@@ -129,7 +140,20 @@ def _one_lifetime(system: Any, options: Mapping[str, Any]) -> tuple:
 
 
 def run_lifetime(chunk: Any, options: Mapping[str, Any]) -> dict:
-    """Task "lifetime" on one chunk: the members on ``threads`` threads, in member order."""
+    """Task "lifetime" on one chunk: the members on ``threads`` threads, in member order.
+
+    Parameters
+    ----------
+    chunk : Ensemble
+        The members.
+    options : mapping
+        The prepared options, plus ``threads`` and ``progress`` at run time.
+
+    Returns
+    -------
+    dict of str to numpy.ndarray
+        The columns listed in the module docstring, one row per member.
+    """
     from . import _core
 
     threads = options.get("threads") or _cores()
@@ -176,7 +200,18 @@ def _index(value: Any, name: str, limit: int | None = None) -> int:
 
 
 def prepare_amplification(**options: Any) -> dict:
-    """Validate the options of task "amplification" (see the module docstring)."""
+    """Validate the options of task "amplification" (see the module docstring).
+
+    Parameters
+    ----------
+    **options
+        The task's options (see the module docstring).
+
+    Returns
+    -------
+    dict
+        The options, validated and JSON-friendly (hashed into the store's manifest).
+    """
     _unknown(options, _AMPLIFICATION_KEYS)
     if "t" not in options:
         raise ValueError("t: the time span is required (Sweep(..., t=...))")
@@ -197,7 +232,20 @@ def prepare_amplification(**options: Any) -> dict:
 
 
 def run_amplification(chunk: Any, options: Mapping[str, Any]) -> dict:
-    """Task "amplification" on one chunk: the members and their displaced twins in one batch."""
+    """Task "amplification" on one chunk: the members and their displaced twins in one batch.
+
+    Parameters
+    ----------
+    chunk : Ensemble
+        The members.
+    options : mapping
+        The prepared options, plus ``threads`` and ``progress`` at run time.
+
+    Returns
+    -------
+    dict of str to numpy.ndarray
+        The columns listed in the module docstring, one row per member.
+    """
     opts = dict(options)
     threads, progress = opts.pop("threads", None), opts.pop("progress", None)
     pert, body, axis = opts.pop("perturbation"), opts.pop("body"), opts.pop("axis")
