@@ -10,6 +10,7 @@ gives width and height, ISO/IEC 15948), and the round-trip distances of a resume
 from __future__ import annotations
 
 import base64
+import json
 import os
 import re
 import signal
@@ -302,3 +303,44 @@ def test_version_and_help(capsys):
     assert main(["--version"]) == 0
     assert capsys.readouterr().out.strip() == loschmidt.__version__
     assert main([]) == 2
+
+
+def test_sweep_file_with_post_newtonian_terms(tmp_path):
+    # The speed of light from the [units] section: 1e6 solar masses and a parsec (IAU/CODATA
+    # constants in loschmidt.units).
+    cfg = tmp_path / "pn.toml"
+    cfg.write_text(
+        """
+[ensemble]
+family = "free-fall-grid"
+nx = 3
+ny = 4
+
+[task]
+name = "lifetime"
+t_max = 20
+precision = "f64"
+method = "chain"
+pn = [1, 2, 2.5]
+c = "units"
+
+[store]
+path = "pn-store"
+chunk_size = 4
+
+[units]
+mass = 1e6
+length = "pc"
+"""
+    )
+    r = _cli("sweep", str(cfg), "--no-progress")
+    assert r.returncode == 0, r.stderr
+    df = loschmidt.read_store(tmp_path / "pn-store")
+    assert set(df["outcome"]) <= {"merger", "escape", "bound", "undecided"}
+    manifest = json.loads((tmp_path / "pn-store" / "manifest.json").read_text())
+    c = float(manifest["definition"]["options"]["c"])
+    assert abs(c / loschmidt.units.Scale(mass=1e6, length=loschmidt.units.PARSEC).c - 1) < 1e-15
+    bad = cfg.read_text().replace("pn = [1, 2, 2.5]", "pn = [3]")
+    cfg.write_text(bad)
+    r = _cli("sweep", str(cfg), "--no-progress")
+    assert r.returncode == 2 and "pn" in r.stderr

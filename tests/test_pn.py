@@ -270,3 +270,46 @@ def test_bad_pn_arguments_named(kwargs, name, exc) -> None:
     kw.update(kwargs)
     with pytest.raises(exc, match=name):
         loschmidt.integrate(ics.binary(0.5, 0.5, 1, 0, precision="f64"), 1, **kw)
+
+
+def test_merge_replaces_the_pair_and_goes_on() -> None:
+    # The merging triple above, with merge=True: the binary becomes one body of mass 1 and the run
+    # goes on to t with two bodies. Conservation of momentum and of the centre-of-mass motion at
+    # the merger is exact up to rounding (the merged body carries the pair's momentum).
+    s = ics.hierarchical(
+        inner=dict(m1=0.5, m2=0.5, a=0.2, e=0.3), outer=dict(m3=0.2, a=5, e=0), precision="f64"
+    )
+    s = loschmidt.System(s.masses[[2, 0, 1]], s.positions[[2, 0, 1]], s.velocities[[2, 0, 1]], precision="f64")
+    c = 20.0
+    stop = loschmidt.integrate(s, 1e3, method="chain", pn=(1, 2, 2.5), c=c)
+    assert stop.status == "merger"
+    r = loschmidt.integrate(s, 1e3, method="chain", pn=(1, 2, 2.5), c=c, merge=True)
+    assert r.status == "success" and r.system.n == 2
+    assert len(r.mergers) == 1
+    t_merge, i, j = r.mergers[0]
+    assert (i, j) == (1, 2) and t_merge == stop.t
+    assert r.t == 1e3 and r.collision is None
+    assert list(r.system.masses) == [0.2, 1.0]
+    m = loschmidt.merged(stop.system, 1, 2)
+    p_before = stop.system.momentum()
+    p_after = m.momentum()
+    assert np.allclose(p_before, p_after, rtol=0, atol=1e-16)
+    com = lambda q: np.sum(q.masses[:, None] * q.positions, axis=0) / np.sum(q.masses)  # noqa: E731
+    assert np.allclose(com(stop.system), com(m), rtol=0, atol=1e-15)
+    # The result saves and loads with its mergers.
+    back = loschmidt.Result.from_dict(r.to_dict())
+    assert back.mergers == r.mergers
+
+
+def test_merge_arguments_checked() -> None:
+    s = ics.binary(0.5, 0.5, 1, 0.3, precision="f64")
+    with pytest.raises(ValueError, match="merge"):
+        loschmidt.integrate(s, 1, method="chain", merge=True)
+    with pytest.raises(TypeError, match="merge"):
+        loschmidt.integrate(s, 1, method="chain", pn=(1,), c=10.0, merge="yes")
+    with pytest.raises(ValueError, match="times"):
+        loschmidt.integrate(s, 1, method="chain", pn=(1,), c=10.0, merge=True, times=[0.5])
+    with pytest.raises(ValueError, match="i, j"):
+        loschmidt.merged(s, 0, 0)
+    with pytest.raises(ValueError, match="j"):
+        loschmidt.merged(s, 0, 5)

@@ -26,7 +26,7 @@ from .batch import BatchResult, integrate_batch, roundtrip_batch
 from .store import read_store
 from .sweep import Sweep, available_tasks, register_task
 from .outcome import DEFAULT_DISTANCE_FACTOR, OUTCOME_KINDS, BoundPair, Outcome, integrate_until_escape, outcome
-from .integrate import DEFAULT_TOLERANCE, METHODS, Result, Trajectory, integrate, phase_distance, phase_distances
+from .integrate import DEFAULT_TOLERANCE, METHODS, Result, Trajectory, integrate, merged, phase_distance, phase_distances
 from .precision import PRECISIONS
 from .status import STATUSES
 from .system import System
@@ -48,6 +48,7 @@ __all__ = [
     "Result",
     "Trajectory",
     "integrate",
+    "merged",
     "phase_distance",
     "phase_distances",
     "precision",

@@ -164,12 +164,38 @@ _ENSEMBLES: dict[str, dict[str, Callable]] = {
 }
 _ENSEMBLE_REQUIRED = {"free-fall-grid": ("nx", "ny"), "free-fall-random": ("n", "seed"), "virial-triples": ("n", "seed")}
 
+def _pn_orders(v: Any, where: str) -> list:
+    if not isinstance(v, list) or not v or not all(_is_number(x) and x in (1, 2, 2.5) for x in v):
+        raise ConfigError(f"{where}: expected a list of post-Newtonian orders among 1, 2, 2.5, got {v!r}")
+    return v
+
+
+def _light_speed(v: Any, where: str) -> Any:
+    if v == "units":  # the speed of light in the [units] section's units (resolved with them)
+        return v
+    return _check_number(v, where, positive=True, allow_string=True)
+
+
+def _regularization(v: Any, where: str) -> str:
+    from .integrate import REGULARIZATIONS
+
+    return _check_str(v, where, REGULARIZATIONS)
+
+
+#: Options of the chain method in a sweep: collisions (shared radii) and post-Newtonian terms.
+_CHAIN = {"radii": _check_numbers, "regularization": _regularization, "pn": _pn_orders, "c": _light_speed,
+          "merger_factor": lambda v, w: _check_number(v, w)}
+_CHAIN_PN = {k: _CHAIN[k] for k in ("regularization", "pn", "c", "merger_factor")}
+
 #: Tasks of a sweep file: name -> (option checks, required options).
 _TASKS: dict[str, tuple[dict[str, Callable], tuple[str, ...]]] = {
-    "roundtrip": ({"t": _span, **_INTEGRATION}, ("t",)),
-    "integrate": ({"t": _span, **_INTEGRATION}, ("t",)),
+    "roundtrip": ({"t": _span, **_INTEGRATION, **_CHAIN}, ("t",)),
+    "integrate": ({"t": _span, **_INTEGRATION, **_CHAIN}, ("t",)),
+    "amplification": ({"t": _span, "perturbation": _span, "body": lambda v, w: _check_int(v, w, minimum=0),
+                       "axis": lambda v, w: _check_int(v, w, minimum=0), **_INTEGRATION, **_CHAIN}, ("t",)),
     "lifetime": ({"t_max": _span, "interval": _span, "precision": _precision, "method": _method, "tol": _tolerance,
-                  "max_steps": _pos_int, "max_wall_time": _pos_num, "distance_factor": _pos_num}, ("t_max",)),
+                  "max_steps": _pos_int, "max_wall_time": _pos_num, "distance_factor": _pos_num, **_CHAIN_PN},
+                 ("t_max",)),
 }
 
 #: Single systems of a run file (and ``run --family``): name -> argument checks.
@@ -278,6 +304,10 @@ def sweep_config(path: Any) -> dict:
     store = _check_table(data["store"], "store", _SWEEP_SECTIONS["store"], where, required=("path",))
     execution = _check_table(data.get("execution", {}), "execution", _SWEEP_SECTIONS["execution"], where)
     units = _check_table(data.get("units", {}), "units", _UNITS, where)
+    if options.get("c") == "units":
+        if not units:
+            raise ConfigError(f"{where}: [task] c = \"units\" needs a [units] section (mass, length)")
+        options["c"] = _scale(units).decimal("c")
     base = Path(path).resolve().parent
     store["path"] = str((base / store["path"]).resolve()) if not Path(store["path"]).is_absolute() else store["path"]
     return {"ensemble": (family, ens_args), "task": (name, options), "store": store, "execution": execution,

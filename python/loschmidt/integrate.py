@@ -27,8 +27,11 @@ __all__ = [
     "Trajectory",
     "phase_distance",
     "phase_distances",
+    "merged",
 ]
 
+#: Names of the integration methods, ``"gbs"`` (Gragg-Bulirsch-Stoer in Cartesian coordinates) and
+#: ``"chain"`` (the same extrapolation over a regularized leapfrog in chain coordinates).
 METHODS = ("gbs", "chain")
 
 #: Regularizations of the chain method's leapfrog substep.
@@ -40,16 +43,28 @@ PN_ORDERS = {1: 1, 2: 2, 2.5: 4}
 #: Default merger distance in units of the pair's summed Schwarzschild radii 2 G (m_i + m_j) / c^2.
 DEFAULT_MERGER_FACTOR = 8.0
 
-#: Default relative tolerance per precision: a few hundred units of round-off, so the truncation
+#: Default relative tolerance per precision, a few hundred units of round-off, so the truncation
 #: error of the extrapolation sits just above the precision's floor.
 DEFAULT_TOLERANCE = {"f64": 1e-13, "f64c": 1e-14, "dd": 1e-28, "qd": 1e-56}
 
 
 @dataclass(frozen=True)
 class Trajectory:
-    """States at the requested output times, in full precision.
+    """States at the requested output times, in full precision (``Result.trajectory``).
 
-    ``times`` are float64 offsets from the start; ``limbs("positions")`` is (M, N, 3, k).
+    ``len(trajectory)`` is the number M of outputs reached; ``trajectory[i]`` is the state at output
+    ``i`` as a System.
+
+    Attributes
+    ----------
+    precision : str
+        The working precision.
+    t_limbs : numpy.ndarray, shape (M, k)
+        Output times (the start's epoch plus the offsets), limbs.
+    positions_limbs, velocities_limbs : numpy.ndarray, shape (M, N, 3, k)
+        States at the outputs, limbs.
+    start : System
+        The state integrated from.
     """
 
     precision: str
@@ -74,7 +89,18 @@ class Trajectory:
         return _p.to_float(self.velocities_limbs)
 
     def limbs(self, name: str) -> np.ndarray:
-        """Full-precision ``"t"`` (M,k), ``"positions"`` or ``"velocities"`` (M,N,3,k)."""
+        """Full-precision values as limb arrays (copies).
+
+        Parameters
+        ----------
+        name : {"t", "positions", "velocities"}
+            Which values.
+
+        Returns
+        -------
+        numpy.ndarray
+            Shape (M, k) for ``"t"``, (M, N, 3, k) for the others.
+        """
         table = {"t": self.t_limbs, "positions": self.positions_limbs, "velocities": self.velocities_limbs}
         if name not in table:
             raise ValueError(f"name: expected one of {tuple(table)}, got {name!r}")
@@ -113,9 +139,13 @@ class Result:
     wall_time : float
         Seconds spent in the engine.
     energy_error : float
-        |E(t) - E(0)| / |E(0)| computed in the working precision (absolute when E(0) = 0). With
-        ``pn``: the error of the energy bookkeeping, |E(t) - E(0) - W| / |E(0)|, E the Newtonian
+        ``|E(t) - E(0)| / |E(0)|`` computed in the working precision (absolute when E(0) = 0). With
+        ``pn``: the error of the energy bookkeeping, ``|E(t) - E(0) - W| / |E(0)|``, E the Newtonian
         energy relative to the centre of mass and W the work done by the post-Newtonian forces.
+    method, precision : str
+        The method and working precision used.
+    tol : float
+        The relative tolerance used.
     trajectory : Trajectory or None
         States at the requested ``times``.
     collision : (i, j) or None
@@ -126,6 +156,19 @@ class Result:
     lifetime : float or None
         With ``stop="escape"``: the time from the start at which the run stopped because a body
         escaped (status ``stop_condition``); None otherwise.
+    mergers : tuple of (float, int, int)
+        With ``merge=True``: the mergers, as (time, i, j) with the body indices at that moment.
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> r = loschmidt.integrate(loschmidt.ics.pythagorean("dd"), 10, times=[2.5, 5, 7.5, 10])
+    >>> r.status, r.success, r.t
+    ('success', True, 10.0)
+    >>> len(r.trajectory), r.trajectory.times
+    (4, array([ 2.5,  5. ,  7.5, 10. ]))
+    >>> r.trajectory[-1] == r.system
+    True
     """
 
     system: System
@@ -144,6 +187,7 @@ class Result:
     collision: tuple[int, int] | None = None
     rechains: int = 0
     lifetime: float | None = None
+    mergers: tuple = ()
 
     @property
     def success(self) -> bool:
@@ -155,7 +199,13 @@ class Result:
                "method", "precision", "tol", "rechains")
 
     def to_dict(self) -> dict:
-        """A JSON-ready record: the final system (exact limbs), settings, status, counters, trajectory."""
+        """A JSON-ready record: the final system (exact limbs), settings, status, counters, trajectory.
+
+        Returns
+        -------
+        dict
+            Format ``"loschmidt.result"``; ``from_dict`` reads it back bit for bit.
+        """
         from . import __version__
         from .serialize import FORMAT_VERSION, limbs_to_json
 
@@ -165,6 +215,7 @@ class Result:
             out[name] = value.hex() if isinstance(value, float) else value
         out["collision"] = list(self.collision) if self.collision else None
         out["lifetime"] = None if self.lifetime is None else float(self.lifetime).hex()
+        out["mergers"] = [[float(t).hex(), int(i), int(j)] for t, i, j in self.mergers]
         out["system"] = self.system.to_dict()
         if self.trajectory is not None:
             out["trajectory"] = {
@@ -177,7 +228,17 @@ class Result:
 
     @classmethod
     def from_dict(cls, data: dict) -> "Result":
-        """Rebuild a Result from ``to_dict`` output (floats and limbs bit for bit)."""
+        """Rebuild a Result from ``to_dict`` output (floats and limbs bit for bit).
+
+        Parameters
+        ----------
+        data : dict
+            A ``"loschmidt.result"`` record.
+
+        Returns
+        -------
+        Result
+        """
         from .serialize import limbs_from_json
 
         if not isinstance(data, dict) or data.get("format") != "loschmidt.result":
@@ -196,18 +257,49 @@ class Result:
             )
         col = data.get("collision")
         kw["lifetime"] = None if data.get("lifetime") is None else float.fromhex(data["lifetime"])
+        kw["mergers"] = tuple((float.fromhex(t), int(i), int(j)) for t, i, j in data.get("mergers") or ())
         return cls(system=System.from_dict(data["system"]), trajectory=traj,
                    collision=tuple(col) if col else None, **kw)
 
     def save(self, path: Any) -> None:
-        """Write this result to ``path`` as JSON, exactly (atomically)."""
+        """Write this result to a JSON file, exactly (atomically).
+
+        Parameters
+        ----------
+        path : str or os.PathLike
+            The file.
+
+        Examples
+        --------
+        >>> import os, tempfile
+        >>> import loschmidt
+        >>> r = loschmidt.integrate(loschmidt.ics.pythagorean("dd"), 5, method="chain")
+        >>> with tempfile.TemporaryDirectory() as d:
+        ...     r.save(os.path.join(d, "run.json"))
+        ...     back = loschmidt.Result.load(os.path.join(d, "run.json"))
+        >>> back.system == r.system, back.energy_error == r.energy_error
+        (True, True)
+        >>> more = loschmidt.integrate(back.system, 5, method="chain")   # continues bit for bit
+        >>> more.system == loschmidt.integrate(r.system, 5, method="chain").system
+        True
+        """
         from .serialize import write_json
 
         write_json(path, self.to_dict())
 
     @classmethod
     def load(cls, path: Any) -> "Result":
-        """Read a result written by ``save``."""
+        """Read a result written by ``save``.
+
+        Parameters
+        ----------
+        path : str or os.PathLike
+            The file.
+
+        Returns
+        -------
+        Result
+        """
         from .serialize import read_json
 
         return cls.from_dict(read_json(path, "loschmidt.result"))
@@ -226,7 +318,12 @@ def _time_limbs(t: Any, prec: str, name: str) -> np.ndarray:
     return limbs
 
 
-def _positive_or_none(value: Any, name: str, integer: bool = False) -> Any:
+#: Largest integer option the engine takes (a C++ long long); ``max_order`` is an int.
+_INT64_MAX = 2**63 - 1
+_INT32_MAX = 2**31 - 1
+
+
+def _positive_or_none(value: Any, name: str, integer: bool = False, maximum: int = _INT64_MAX) -> Any:
     if value is None:
         return None
     _check_number(value, name)
@@ -235,6 +332,8 @@ def _positive_or_none(value: Any, name: str, integer: bool = False) -> Any:
             raise TypeError(f"{name}: expected an integer, got {type(value).__name__}")
         if value <= 0:
             raise ValueError(f"{name}: must be positive, got {value}")
+        if value > maximum:
+            raise ValueError(f"{name}: must be at most {maximum}, got {value}")
         return int(value)
     if not isinstance(value, numbers.Real):
         raise TypeError(f"{name}: expected a number, got {type(value).__name__}")
@@ -245,7 +344,26 @@ def _positive_or_none(value: Any, name: str, integer: bool = False) -> Any:
 
 
 def check_tolerance(tol: Any, prec: str, name: str = "tol") -> float:
-    """Validate a relative tolerance for ``prec`` (None: the precision's default)."""
+    """Validate a relative tolerance.
+
+    Parameters
+    ----------
+    tol : float or None
+        The tolerance; None gives the precision's default (``DEFAULT_TOLERANCE``).
+    prec : str
+        The working precision.
+    name : str, optional
+        The argument name used in error messages.
+
+    Returns
+    -------
+    float
+
+    Raises
+    ------
+    ValueError
+        Outside (0, 1), or below about 50 units of round-off of ``prec``.
+    """
     if tol is None:
         return DEFAULT_TOLERANCE[prec]
     _check_number(tol, name)
@@ -336,6 +454,20 @@ def _check_pn(pn: Any, c: Any, merger_factor: Any, method: str, prec: str) -> tu
     return mask, [float(x) for x in c_limbs], factor
 
 
+def _check_fixed_budget(fixed_step: Any, t_limbs: np.ndarray, max_steps: Any, steps: int) -> None:
+    """With ``fixed_step`` and no explicit ``max_steps``, refuse a span that needs more steps than the
+    default budget: the run could only end with status max_steps, after hours."""
+    if fixed_step is None or max_steps is not None:
+        return
+    h = _positive_or_none(fixed_step, "fixed_step")
+    needed = abs(float(_p.to_float(t_limbs))) / h
+    if needed > steps:
+        raise ValueError(
+            f"fixed_step: |t| / fixed_step = {needed:.3g} steps exceed the default budget of {steps} steps; "
+            "use a larger fixed_step, or pass max_steps to run part of the way"
+        )
+
+
 def _check_stop(stop: Any, check_every: Any, distance_factor: Any, fixed_step: Any, initial_step: Any,
                 method: str) -> dict:
     """Validate the stop condition and fixed-step arguments: the engine's keyword arguments."""
@@ -376,12 +508,14 @@ def integrate(
     check_every: int = 10,
     distance_factor: float | None = None,
     fixed_step: float | None = None,
+    merge: bool = False,
 ) -> Result:
     """Integrate ``system`` over a time span ``t`` (negative: backward) in its working precision.
 
     Parameters
     ----------
     system : System
+        The start; its precision is the working precision.
     t : number or decimal string
         Span of the integration, converted exactly to the working precision.
     method : {"gbs", "chain"}
@@ -444,6 +578,13 @@ def integrate(
     distance_factor : float, optional
         k of the escape test (default ``loschmidt.outcome.DEFAULT_DISTANCE_FACTOR``); 0 drops the
         distance condition.
+    merge : bool, optional
+        With ``pn``: instead of ending the run at a merger, replace the pair by one body
+        (``merged``: masses added, momentum and centre of mass conserved) and go on to ``t``, as
+        often as mergers happen. ``Result.mergers`` lists them as (time, i, j), indices of the
+        bodies at that moment (the merged body takes index ``min(i, j)``), and ``Result.system``
+        has fewer bodies; counters add up over the pieces and ``energy_error`` is that of the
+        last piece. Not with ``times``.
     fixed_step : float, optional
         Fixed-step mode (gbs only), for measuring the order of the method: every step has this
         size (the last before each output time and ``t`` is shortened to land), with exactly
@@ -453,6 +594,20 @@ def integrate(
     Returns
     -------
     Result
+        The final state, the status (see ``loschmidt.STATUSES``), counters and the energy error.
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> s = loschmidt.ics.pythagorean("dd")
+    >>> r = loschmidt.integrate(s, 10, method="chain")
+    >>> r.status, r.energy_error < 1e-24
+    ('success', True)
+    >>> back = loschmidt.integrate(r.system.reversed(), 10, method="chain").system.reversed()
+    >>> loschmidt.phase_distance(back, s) < 1e-20     # a round trip by hand
+    True
+    >>> loschmidt.integrate(s, "-0.5").t               # backward, an exact decimal span
+    -0.5
     """
     if not isinstance(system, System):
         raise TypeError(f"system: expected a loschmidt.System, got {type(system).__name__}")
@@ -464,14 +619,22 @@ def integrate(
     outs = _output_times(times, t_limbs, prec)
     steps = _positive_or_none(max_steps, "max_steps", integer=True) or 10**9
     wall = _positive_or_none(max_wall_time, "max_wall_time") or math.inf
-    order = 0 if max_order is None else _positive_or_none(max_order, "max_order", integer=True)
+    order = 0 if max_order is None else _positive_or_none(max_order, "max_order", integer=True, maximum=_INT32_MAX)
     if order and order < 3 and fixed_step is None:
         raise ValueError(f"max_order: must be at least 3, got {max_order}")
     h0 = 0.0 if initial_step is None else _positive_or_none(initial_step, "initial_step")
+    _check_fixed_budget(fixed_step, t_limbs, max_steps, steps)
     if regularization not in REGULARIZATIONS:
         raise ValueError(f"regularization: expected one of {REGULARIZATIONS}, got {regularization!r}")
     radii = [] if (system.radii is None or method != "chain") else [float(r) for r in system.radii]
     pn_mask, c_limbs, factor = _check_pn(pn, c, merger_factor, method, prec)
+
+    if not isinstance(merge, (bool, np.bool_)):
+        raise TypeError(f"merge: expected True or False, got {type(merge).__name__}")
+    if merge and not pn_mask:
+        raise ValueError("merge: merging is for post-Newtonian mergers; pass pn and c with it")
+    if merge and outs.shape[0]:
+        raise ValueError("times: not available with merge=True (the number of bodies changes at a merger)")
 
     kernel = getattr(_core, f"integrate_{prec}")
     raw = kernel(
@@ -479,15 +642,113 @@ def integrate(
         t_limbs, outs, rtol, a_tol, steps, wall, order, h0, radii, REGULARIZATIONS.index(regularization),
         pn_mask, c_limbs, factor, **_check_stop(stop, check_every, distance_factor, fixed_step, initial_step, method),
     )
-    return _wrap(system, raw, method, prec, rtol, bool(outs.shape[0]))
+    result = _wrap(system, raw, method, prec, rtol, bool(outs.shape[0]))
+    if not merge or result.status != "merger":
+        return result
+    return _after_mergers(system, t_limbs, result, dict(
+        method=method, tol=tol, atol=atol, max_steps=max_steps, max_wall_time=max_wall_time, max_order=max_order,
+        regularization=regularization, pn=pn, c=c, merger_factor=merger_factor))
+
+
+def merged(system: System, i: int, j: int) -> System:
+    """``system`` with bodies ``i`` and ``j`` replaced by one body at index ``min(i, j)``.
+
+    The merged body has mass m_i + m_j (no mass is taken off for the energy radiated), the
+    position of the pair's centre of mass and its velocity (so momentum and the centre of mass of
+    the whole system are conserved), all computed in the working precision; its radius, if the
+    system has radii, is the larger of the two.
+
+    Parameters
+    ----------
+    system : System
+    i, j : int
+        Two different body indices.
+
+    Returns
+    -------
+    System
+        N - 1 bodies, at the same epoch.
+    """
+    if not isinstance(system, System):
+        raise TypeError(f"system: expected a loschmidt.System, got {type(system).__name__}")
+    for name, value in (("i", i), ("j", j)):
+        if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Integral):
+            raise TypeError(f"{name}: expected a body index, got {type(value).__name__}")
+        if not 0 <= value < system.n:
+            raise ValueError(f"{name}: body {value} out of range for {system.n} bodies")
+    if i == j:
+        raise ValueError("i, j: a body cannot merge with itself")
+    if system.n < 2:
+        raise ValueError("system: needs two bodies to merge")
+    i, j = sorted((int(i), int(j)))
+    prec = system.precision
+    m, x, v = system.limbs("masses"), system.limbs("positions"), system.limbs("velocities")
+    total = _p.add(m[i], m[j], prec)
+
+    def centre(q: np.ndarray) -> np.ndarray:
+        weighted = _p.add(_p.mul(m[i], q[i], prec), _p.mul(m[j], q[j], prec), prec)
+        return _p.div(weighted, np.broadcast_to(total, weighted.shape), prec)
+
+    keep = [b for b in range(system.n) if b != j]
+    m2, x2, v2 = m[keep].copy(), x[keep].copy(), v[keep].copy()
+    m2[i], x2[i], v2[i] = total, centre(x), centre(v)
+    radii = system.radii
+    if radii is not None:
+        r = radii[keep].copy()
+        r[i] = max(radii[i], radii[j])
+        radii = r
+    return System.from_limbs(m2, x2, v2, prec, radii=radii, time=system.limbs("time"), check=False)
+
+
+def _after_mergers(start: System, t_limbs: np.ndarray, result: Result, options: dict) -> Result:
+    """Continue a run that stopped at a merger: merge the pair and integrate the rest of ``t``,
+    as often as mergers happen; counters add up over the pieces."""
+    import dataclasses
+
+    prec = start.precision
+    t0 = start.limbs("time")
+    events = []
+    steps, rejected, evaluations, wall, rechains = (result.steps, result.rejected, result.evaluations,
+                                                     result.wall_time, result.rechains)
+    current = result
+    while current.status == "merger" and current.collision is not None:
+        i, j = current.collision
+        events.append((current.t, i, j))
+        state = merged(current.system, i, j)
+        elapsed = _p.sub(state.limbs("time"), t0, prec)
+        remaining = _p.sub(t_limbs, elapsed, prec)
+        left = _p.to_fraction(remaining)
+        span = str(_p.to_string(remaining, exact=True))
+        if left == 0 or (left > 0) != (_p.to_fraction(t_limbs) > 0):
+            current = dataclasses.replace(current, system=state, status="success", message=status_message("success"),
+                                          collision=None)
+            break
+        if state.n == 1:  # a single body moves freely
+            x = _p.add(state.limbs("positions"), _p.mul(state.limbs("velocities"),
+                       np.broadcast_to(remaining, state.limbs("velocities").shape), prec), prec)
+            end = _p.add(state.limbs("time"), remaining, prec)
+            state = System.from_limbs(state.limbs("masses"), x, state.limbs("velocities"), prec, radii=state.radii,
+                                      time=end, check=False)
+            current = dataclasses.replace(current, system=state, t=float(_p.to_float(end)), status="success",
+                                          message=status_message("success"), collision=None)
+            break
+        current = integrate(state, span, **options)
+        steps += current.steps
+        rejected += current.rejected
+        evaluations += current.evaluations
+        wall += current.wall_time
+        rechains += current.rechains
+    return dataclasses.replace(current, steps=steps, rejected=rejected, evaluations=evaluations, wall_time=wall,
+                               rechains=rechains, mergers=tuple(events))
 
 
 def _wrap(system: System, raw: dict, method: str, prec: str, rtol: float, want_trajectory: bool) -> Result:
     t0 = system.limbs("time")
     t_abs = _p.add(t0, raw["t"], prec) if np.any(t0) else raw["t"]
-    final = System.from_limbs(
-        system.limbs("masses"), raw["positions"], raw["velocities"], prec,
-        radii=system.radii, time=t_abs, check=False,
+    # As the engine returned it: a failed run (status nonfinite) may hold infinities or NaN.
+    final = System._unchecked(
+        system.limbs("masses"), np.ascontiguousarray(raw["positions"]), np.ascontiguousarray(raw["velocities"]),
+        prec, system.radii, np.ascontiguousarray(t_abs),
     )
     traj = None
     if want_trajectory:
@@ -538,8 +799,16 @@ def _sum_of_squares(d: np.ndarray, prec: str) -> np.ndarray:
 def phase_distances(a: System, b: System) -> dict:
     """Position, velocity and phase-space distances between two states, in the working precision.
 
-    Returns floats ``{"delta", "delta_position", "delta_velocity"}`` with
-    ``delta = sqrt(sum_i |dr_i|^2 + |dv_i|^2)`` (N-body units).
+    Parameters
+    ----------
+    a, b : System
+        Two states of the same number of bodies; the higher of their precisions is used.
+
+    Returns
+    -------
+    dict
+        Floats ``{"delta", "delta_position", "delta_velocity"}`` with
+        ``delta = sqrt(sum_i |dr_i|^2 + |dv_i|^2)`` (N-body units).
     """
     a, b, prec = _common(a, b)
     dx = _p.sub(a.limbs("positions"), b.limbs("positions"), prec)
@@ -555,5 +824,22 @@ def phase_distances(a: System, b: System) -> dict:
 
 
 def phase_distance(a: System, b: System) -> float:
-    """``sqrt(sum_i |dr_i|^2 + |dv_i|^2)`` between two states, computed in the working precision."""
+    """Phase-space distance ``sqrt(sum_i |dr_i|^2 + |dv_i|^2)`` between two states.
+
+    Parameters
+    ----------
+    a, b : System
+        Two states of the same number of bodies; computed in the higher of their precisions.
+
+    Returns
+    -------
+    float
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> s = loschmidt.ics.pythagorean("qd")
+    >>> loschmidt.phase_distance(s, loschmidt.chaos.displaced(s, "1e-40"))
+    1e-40
+    """
     return phase_distances(a, b)["delta"]

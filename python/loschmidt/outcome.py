@@ -4,7 +4,7 @@
 the first chunk end where the state is an escape (a stand-in until the engine has a stop condition).
 
 Hierarchical decomposition (common practice). Every body starts as a particle; the pair of
-particles with the most negative two-body energy E_pq = mu_pq |v_pq|^2 / 2 - m_p m_q / r_pq (each
+particles with the most negative two-body energy ``E_pq = mu_pq |v_pq|^2 / 2 - m_p m_q / r_pq`` (each
 particle a point of its total mass at its centre of mass, mu_pq = m_p m_q / (m_p + m_q)) is replaced
 by a composite particle, and so on until no pair of particles is bound. What remains are the
 *subsystems*: mutually unbound pairwise, each a single body or a hierarchy of bound pairs
@@ -14,12 +14,12 @@ Pythagorean problem after the breakup is two, ``(1, 2)`` and ``0``.
 Escape test (practical; common practice). A subsystem p escapes when
 
 1. its two-body energy relative to the centre of mass of all the other bodies is positive,
-   E_rel = mu |V|^2 / 2 - m_p M_rest / R > 0 (mu = m_p M_rest / (m_p + M_rest), R and V the
+   ``E_rel = mu |V|^2 / 2 - m_p M_rest / R > 0`` (mu = m_p M_rest / (m_p + M_rest), R and V the
    separation and relative velocity of the two centres of mass);
 2. it recedes from that centre of mass, R . V > 0;
 3. it is far from every other subsystem q: r_pq > k L_pq, with k = ``distance_factor`` (default 10)
    and L_pq the larger semimajor axis of the outermost orbits of p and q (a single body has none);
-   when both are single bodies, L_pq = |a_pq|, the semimajor axis of their own hyperbolic orbit.
+   when both are single bodies, ``L_pq = |a_pq|``, the semimajor axis of their own hyperbolic orbit.
 
 For three bodies this is the usual test: the escaper has positive energy relative to the centre of
 mass of the binary, recedes from it, and is farther than k binary semimajor axes. It is a practical
@@ -109,8 +109,18 @@ _EXACT_NAMES = (
 # ---------------------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class BoundPair:
-    """One bound pair of the hierarchy: group ``j`` about group ``i`` (each a tuple of body indices,
-    a composite counting as one body of its total mass at its centre of mass)."""
+    """One bound pair of the hierarchy: group ``j`` about group ``i``.
+
+    Attributes
+    ----------
+    i, j : tuple of int
+        The two groups, as body indices (a composite counts as one body of its total mass at its
+        centre of mass).
+    semimajor_axis, eccentricity, period, energy : float
+        Elements and two-body energy of the pair (``loschmidt.orbits`` conventions).
+    elements : OrbitalElements
+        All the elements, in full precision.
+    """
 
     i: tuple
     j: tuple
@@ -129,8 +139,14 @@ class Outcome:
     ----------
     kind : str
         ``"escape"``, ``"bound"``, ``"undecided"`` or ``"collision"``.
-    n, time, precision, distance_factor
-        Number of bodies, epoch of the state, working precision, k of the escape test.
+    n : int
+        Number of bodies.
+    time : float
+        Epoch of the state.
+    precision : str
+        Its working precision.
+    distance_factor : float
+        k of the escape test.
     escaper : int or None
         The escaping body (three bodies: the body outside the binary, when it escapes; more bodies:
         the escaper when exactly one single body escapes).
@@ -204,12 +220,29 @@ class Outcome:
         return " + ".join(_tree_text(t) for t in self.subsystems)
 
     def to_mpmath(self) -> dict:
-        """The exact energies, elements and distances (mpmath values carrying the guard bits); NaN
-        where the float field is NaN."""
+        """The exact energies, elements and distances.
+
+        Returns
+        -------
+        dict
+            Name -> mpmath value carrying the guard bits; NaN where the float field is NaN.
+        """
         return dict(self._exact)
 
     def limbs(self, name: str) -> np.ndarray:
-        """One of the exact quantities as float64 limbs (k,) of the working precision."""
+        """One of the exact quantities in full precision.
+
+        Parameters
+        ----------
+        name : str
+            ``"energy"``, ``"binary_energy"``, ``"outer_energy"``, ``"semimajor_axis"``,
+            ``"eccentricity"``, ``"period"``, ``"v_inf"``, ``"distance"`` ...
+
+        Returns
+        -------
+        numpy.ndarray, shape (k,)
+            float64 limbs of the working precision.
+        """
         if name not in _EXACT_NAMES:
             raise ValueError(f"name: expected one of {_EXACT_NAMES}, got {name!r}")
         value = self._exact[name]
@@ -221,8 +254,13 @@ class Outcome:
         return np.asarray(_p.to_limbs(value, self.precision), dtype=np.float64).reshape(k)
 
     def as_dict(self) -> dict:
-        """A flat row for a results table: plain ints, floats, bools and strings; -1 for a missing
-        index, NaN for a missing number."""
+        """A flat row for a results table.
+
+        Returns
+        -------
+        dict
+            Plain ints, floats, bools and strings; -1 for a missing index, NaN for a missing number.
+        """
 
         def idx(v: int | None) -> int:
             return -1 if v is None else int(v)
@@ -425,6 +463,7 @@ def outcome(system: System, distance_factor: float = DEFAULT_DISTANCE_FACTOR, ra
     Parameters
     ----------
     system : System
+        The state to classify.
     distance_factor : float, optional
         k of the escape test: an escaper must be farther than k semimajor axes of the binary
         (default 10, common practice); 0 drops the distance condition.
@@ -436,6 +475,15 @@ def outcome(system: System, distance_factor: float = DEFAULT_DISTANCE_FACTOR, ra
     Outcome
         See :mod:`loschmidt.outcome` for the decomposition, the escape test (Standish 1971,
         Celest. Mech. 4, 44; Valtonen & Karttunen 2006, ch. 8, for rigorous conditions) and the kinds.
+
+    Examples
+    --------
+    >>> from loschmidt import ics, outcome
+    >>> outcome(ics.binary(1, 1, 1, 0.5)).kind
+    'bound'
+    >>> o = outcome(ics.hierarchical(dict(m1=1, m2=1, a=1, e=0), dict(m3=1, a=-2, e=1.5, true_anomaly=2.2)))
+    >>> o.kind, o.escaper, o.binary, round(o.semimajor_axis, 12)
+    ('escape', 2, (0, 1), 1.0)
     """
     if not isinstance(system, System):
         raise TypeError(f"system: expected a loschmidt.System, got {type(system).__name__}")
@@ -643,11 +691,14 @@ def integrate_until_escape(
     Parameters
     ----------
     system : System
+        The start.
     t_max : number or decimal string
         Longest span to integrate (> 0).
     interval : number or decimal string, optional
         Chunk length (> 0, default 10 N-body time units); chunk ends are exact multiples of it.
-    distance_factor, radii
+    distance_factor : float, optional
+        Passed to :func:`outcome`.
+    radii : sequence of N numbers, optional
         Passed to :func:`outcome`.
     **integrate_options
         Passed to :func:`loschmidt.integrate` (``method``, ``tol``, ``max_steps`` per chunk ...);
@@ -660,6 +711,16 @@ def integrate_until_escape(
         accumulated over every chunk; the ``Outcome`` of the final state; ``lifetime``, the time
         from the start to the chunk end of the escape (or collision), or None when neither happened
         (also when a chunk did not finish: see ``Result.status``).
+
+    Examples
+    --------
+    Burrau's problem breaks up, the lightest body leaving (Szebehely & Peters 1967):
+
+    >>> import loschmidt
+    >>> res, found, lifetime = loschmidt.integrate_until_escape(
+    ...     loschmidt.ics.pythagorean("f64"), 200, interval=10, method="chain")
+    >>> found.kind, found.escaper, lifetime
+    ('escape', 0, 70.0)
     """
     from .integrate import integrate
 
@@ -676,6 +737,7 @@ def integrate_until_escape(
     state = system
     steps = rejected = evaluations = 0
     wall = 0.0
+    bookkeeping = 0.0
     result = None
     found = None
     while elapsed < total:
@@ -685,6 +747,7 @@ def integrate_until_escape(
         rejected += result.rejected
         evaluations += result.evaluations
         wall += result.wall_time
+        bookkeeping = max(bookkeeping, result.energy_error)
         if result.status in ("collision", "merger"):
             # The engine stopped at the event itself (chain method with radii, or a post-Newtonian
             # merger): the lifetime is the exact time reached, not the chunk end.
@@ -699,6 +762,10 @@ def integrate_until_escape(
             break
     e1 = _p.to_fraction(state.energy(limbs=True))
     err = abs(e1 - e0) / abs(e0) if e0 != 0 else abs(e1 - e0)
+    if integrate_options.get("pn"):
+        # The Newtonian energy is not conserved with post-Newtonian terms: the largest error of the
+        # energy bookkeeping over the chunks (each |E - E_start - W| / |E_start|), as integrate reports.
+        err = bookkeeping
     result = dataclasses.replace(
         result, steps=steps, rejected=rejected, evaluations=evaluations, wall_time=wall, energy_error=float(err)
     )

@@ -53,7 +53,19 @@ _CENSORED = "#e8e8e8"  # members still bound at the end of the lifetime run
 
 @dataclass(frozen=True)
 class AxisUnits:
-    """How lengths and times are shown: value in N-body units times ``*_factor``, named ``*_name``."""
+    """How lengths and times are shown: the value in N-body units times ``*_factor``, named ``*_name``.
+
+    Parameters
+    ----------
+    length_name : str, optional
+        Unit name of lengths on the axis labels (default ``"N-body units"``).
+    length_factor : float, optional
+        Factor from N-body lengths to the shown unit (default 1).
+    time_name : str, optional
+        Unit name of times (default ``"N-body units"``).
+    time_factor : float, optional
+        Factor from N-body times to the shown unit (default 1).
+    """
 
     length_name: str = "N-body units"
     length_factor: float = 1.0
@@ -62,12 +74,37 @@ class AxisUnits:
 
     @property
     def physical(self) -> bool:
+        """True when lengths or times are shown in physical units."""
         return self.length_name != "N-body units" or self.time_name != "N-body units"
 
     def length(self, what: str) -> str:
+        """An axis label for a length.
+
+        Parameters
+        ----------
+        what : str
+            The quantity, e.g. ``"x"``.
+
+        Returns
+        -------
+        str
+            ``"x [pc]"`` and the like.
+        """
         return f"{what} [{self.length_name}]"
 
     def time(self, what: str = "time") -> str:
+        """An axis label for a time.
+
+        Parameters
+        ----------
+        what : str, optional
+            The quantity (default ``"time"``).
+
+        Returns
+        -------
+        str
+            ``"time [kyr]"`` and the like.
+        """
         return f"{what} [{self.time_name}]"
 
 
@@ -75,8 +112,26 @@ NBODY = AxisUnits()
 
 
 def axis_units(scale: Any = None) -> AxisUnits:
-    """Axis units for a ``loschmidt.units.Scale`` (None: N-body units). Lengths are shown in pc, au
-    or m as the scale's length unit suggests; times in yr, kyr or Myr by the size of the time unit."""
+    """Axis units for a physical scale.
+
+    Parameters
+    ----------
+    scale : loschmidt.units.Scale, optional
+        The physical units; None gives N-body units.
+
+    Returns
+    -------
+    AxisUnits
+        Lengths in pc, au or m as the scale's length unit suggests; times in yr, kyr or Myr by the
+        size of the time unit.
+
+    Examples
+    --------
+    >>> from loschmidt import plots, units
+    >>> u = plots.axis_units(units.Scale(mass=1e6, length=units.PARSEC))
+    >>> u.length("x"), u.time()
+    ('x [pc]', 'time [kyr]')
+    """
     if scale is None:
         return NBODY
     from . import units
@@ -278,6 +333,36 @@ def reversibility_map(
     ``ix``, ``iy`` when present), or a mapping label -> table for panels on one colour scale.
     Members at or below ``threshold`` are the reversible ones (marked on the colour bar); members
     whose run did not finish are grey.
+
+    Parameters
+    ----------
+    data : table or mapping of str to table
+        A pandas DataFrame (``Sweep.results()``) or a mapping of column names to arrays, or a
+        mapping label -> such a table.
+    threshold : float, optional
+        Round-trip distance counted as reversible (default ``DEFAULT_THRESHOLD``).
+    units : AxisUnits, optional
+        Physical units for the axes (``axis_units(scale)``); default N-body units.
+    title : str, optional
+        Figure title (a default otherwise).
+    size : (float, float), optional
+        Figure size in inches.
+    column : str, optional
+        The distance column (default ``"delta"``).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Built without pyplot; write it with :func:`save`.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from loschmidt import plots
+    >>> table = {"x": np.array([0.1, 0.3]), "y": np.array([0.2, 0.4]), "delta": np.array([1e-12, 1e-3])}
+    >>> fig = plots.reversibility_map({"dd": table})
+    >>> len(fig.axes)    # the panel and its colour bar
+    2
     """
     Figure, colors = _mpl()
     del Figure
@@ -352,7 +437,27 @@ def lifetime_map(
     """Map of the time to the first escape over the free-fall region (log colour scale).
 
     ``lifetime`` is NaN for members still bound when their run ended (painted light grey, "no
-    escape yet"); members whose run failed are grey."""
+    escape yet"); members whose run failed are grey.
+
+    Parameters
+    ----------
+    data : table or mapping of str to table
+        Tables with columns ``x``, ``y`` and ``lifetime`` (and ``status``, ``ix``, ``iy`` when
+        present), or a mapping label -> table.
+    units : AxisUnits, optional
+        Physical units for the axes (``axis_units(scale)``); default N-body units.
+    title : str, optional
+        Figure title (a default otherwise).
+    size : (float, float), optional
+        Figure size in inches.
+    column : str, optional
+        The lifetime column (default ``"lifetime"``).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Built without pyplot; write it with :func:`save`.
+    """
     Figure, colors = _mpl()
     del Figure
     u = units or NBODY
@@ -371,6 +476,7 @@ def lifetime_map(
     axes = fig.subplots(1, len(frames), squeeze=False)[0]
     mappable = None
     legend = {}
+    any_merger = False
     for ax, (label, table), v in zip(axes, frames, values):
         finished = _finished(table, np.where(np.isnan(v), 0.0, v))
         escaped = finished & np.isfinite(v) & (v > 0)
@@ -383,13 +489,20 @@ def lifetime_map(
         if np.any(failed):
             legend["did not finish"] = _NOT_FINISHED
         med = np.median(v[escaped]) if np.any(escaped) else float("nan")
-        sub = f"{np.count_nonzero(escaped)} of {len(v)} escaped, median {med:.3g} {u.time_name}"
+        kinds = _col(table, "outcome", object) if _has(table, "outcome") else None
+        merged = int(np.count_nonzero(escaped & (kinds == "merger"))) if kinds is not None else 0
+        if merged:
+            any_merger = True
+            sub = (f"{np.count_nonzero(escaped) - merged} escaped, {merged} merged of {len(v)}\n"
+                   f"median {med:.3g} {u.time_name}")
+        else:
+            sub = f"{np.count_nonzero(escaped)} of {len(v)} escaped, median {med:.3g} {u.time_name}"
         ax.set_title(f"{label}\n{sub}" if label else sub, fontsize=10)
         if ax is not axes[0]:
             ax.set_ylabel("")
     cb = fig.colorbar(mappable, ax=list(axes), shrink=0.85)
     _plain_log_ticks(cb.ax.yaxis)
-    cb.set_label(u.time("time to the first escape"))
+    cb.set_label(u.time("time to the first escape or merger" if any_merger else "time to the first escape"))
     _legend_patches(axes[-1], list(legend.items()))
     fig.suptitle(title or "Lifetime of the free-fall triple", fontsize=11)
     return fig
@@ -406,7 +519,26 @@ def delta_histogram(
     size: tuple[float, float] | None = None,
     column: str = "delta",
 ):
-    """Histogram of log10 delta, one outline per labelled table, with the threshold marked."""
+    """Histogram of log10 delta, one outline per labelled table, with the threshold marked.
+
+    Parameters
+    ----------
+    data : table or mapping of str to table
+        Tables with a ``delta`` column (and ``status``), or a mapping label -> table.
+    threshold : float, optional
+        Round-trip distance counted as reversible (default ``DEFAULT_THRESHOLD``).
+    title : str, optional
+        Figure title (a default otherwise).
+    size : (float, float), optional
+        Figure size in inches.
+    column : str, optional
+        The distance column (default ``"delta"``).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Built without pyplot; write it with :func:`save`.
+    """
     frames = _frames(data)
     fig = _figure(size, (7.0, 4.6))
     ax = fig.subplots()
@@ -450,7 +582,26 @@ def lifetime_histogram(
     size: tuple[float, float] | None = None,
     column: str = "lifetime",
 ):
-    """Histogram of lifetimes (log-spaced bins; members with no escape yet counted in the legend)."""
+    """Histogram of lifetimes (log-spaced bins; members with no escape yet counted in the legend).
+
+    Parameters
+    ----------
+    data : table or mapping of str to table
+        Tables with a ``lifetime`` column, or a mapping label -> table.
+    units : AxisUnits, optional
+        Physical units for the axes (``axis_units(scale)``); default N-body units.
+    title : str, optional
+        Figure title (a default otherwise).
+    size : (float, float), optional
+        Figure size in inches.
+    column : str, optional
+        The lifetime column (default ``"lifetime"``).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Built without pyplot; write it with :func:`save`.
+    """
     u = units or NBODY
     frames = _frames(data)
     fig = _figure(size, (7.0, 4.6))
@@ -496,8 +647,22 @@ def amplification_plot(
 ):
     """log10 of the amplification A(t) of a small perturbation against time.
 
-    ``curves``: a ``loschmidt.chaos.Growth`` or ``Amplification`` (``times`` with ``log_factor``
-    or ``factor``), a ``(times, factor)`` pair, or a mapping label -> any of those.
+    Parameters
+    ----------
+    curves : Growth, Amplification, tuple or mapping
+        A ``loschmidt.chaos.Growth`` or ``Amplification`` (``times`` with ``log_factor`` or
+        ``factor``), a ``(times, factor)`` pair, or a mapping label -> any of those.
+    units : AxisUnits, optional
+        Physical units for the axes (``axis_units(scale)``); default N-body units.
+    title : str, optional
+        Figure title (a default otherwise).
+    size : (float, float), optional
+        Figure size in inches.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Built without pyplot; write it with :func:`save`.
     """
     u = units or NBODY
     items = list(curves.items()) if isinstance(curves, Mapping) else [("", curves)]
@@ -537,9 +702,35 @@ def orbit_plot(
 ):
     """Paths of the bodies in the x-y plane.
 
-    ``positions``: (M, N, 3) or (M, N, 2) positions at M times (``Result.trajectory.positions``,
-    with the start prepended), or a ``Trajectory``. Starts are marked with circles, ends with
-    crosses.
+    Starts are marked with circles, ends with crosses.
+
+    Parameters
+    ----------
+    positions : array-like, shape (M, N, 3) or (M, N, 2), or Trajectory
+        Positions at M times (``Result.trajectory.positions``, with the start prepended), or a
+        ``Trajectory``.
+    masses : sequence of N floats, optional
+        Shown in the legend.
+    units : AxisUnits, optional
+        Physical units for the axes (``axis_units(scale)``); default N-body units.
+    title : str, optional
+        Figure title (a default otherwise).
+    size : (float, float), optional
+        Figure size in inches.
+    labels : sequence of N str, optional
+        Legend entries (default ``"body 1"`` ...).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Built without pyplot; write it with :func:`save`.
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> s = loschmidt.ics.figure_eight("f64")
+    >>> r = loschmidt.integrate(s, loschmidt.ics.FIGURE_EIGHT_PERIOD, times=[k / 10 for k in range(1, 64)])
+    >>> fig = loschmidt.plots.orbit_plot(r.trajectory, masses=s.masses)
     """
     u = units or NBODY
     if hasattr(positions, "positions") and hasattr(positions, "times"):
@@ -582,8 +773,24 @@ def parse_size(text: str) -> tuple[int, int]:
 
 
 def save(fig: Any, path: Any, dpi: float = 150, pixels: tuple[int, int] | None = None) -> Path:
-    """Write ``fig`` to ``path`` (format from the suffix; PNG usual). With ``pixels=(w, h)`` the image
-    is exactly that many pixels (the figure is resized at ``dpi``)."""
+    """Write a figure to a file (format from the suffix; PNG usual).
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        A figure of this module.
+    path : str or os.PathLike
+        The file; missing directories are created.
+    dpi : float, optional
+        Resolution (default 150).
+    pixels : (int, int), optional
+        Exact image size in pixels (the figure is resized at ``dpi``).
+
+    Returns
+    -------
+    pathlib.Path
+        ``path``.
+    """
     path = Path(path)
     if pixels is not None:
         w, h = pixels

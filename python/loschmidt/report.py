@@ -48,7 +48,18 @@ def read_manifest(store: Any) -> dict:
 
 
 def read_settings(store: Any) -> dict:
-    """The command line's notes beside a store (label, units, config), or {}."""
+    """The command line's notes beside a store.
+
+    Parameters
+    ----------
+    store : str or os.PathLike
+        A store directory.
+
+    Returns
+    -------
+    dict
+        ``label``, ``units``, ``config`` from ``cli-settings.json``, or {} when there is none.
+    """
     p = Path(store) / SETTINGS_FILE
     if not p.exists():
         return {}
@@ -60,7 +71,17 @@ def read_settings(store: Any) -> dict:
 
 
 def store_scale(settings: dict) -> Any:
-    """A ``units.Scale`` from a store's settings ``{"units": {"mass": ..., "length": ...}}``, or None."""
+    """The physical units recorded beside a store.
+
+    Parameters
+    ----------
+    settings : dict
+        ``read_settings`` output: ``{"units": {"mass": ..., "length": ...}}``.
+
+    Returns
+    -------
+    loschmidt.units.Scale or None
+    """
     u = settings.get("units") if isinstance(settings, dict) else None
     if not u:
         return None
@@ -68,7 +89,19 @@ def store_scale(settings: dict) -> Any:
 
 
 def make_scale(mass: Any, length: Any) -> Any:
-    """``Scale`` from a mass in solar masses and a length "pc", "au" or a number of metres."""
+    """A ``Scale`` from a mass in solar masses and a length ``"pc"``, ``"au"`` or a number of metres.
+
+    Parameters
+    ----------
+    mass : float
+        Solar masses per mass unit.
+    length : str or float
+        ``"pc"``, ``"parsec"``, ``"au"`` or metres per length unit.
+
+    Returns
+    -------
+    loschmidt.units.Scale
+    """
     from .units import AU, PARSEC, Scale
 
     if isinstance(length, str):
@@ -94,8 +127,20 @@ def store_columns(store: Any) -> dict[str, bool]:
 
 
 def load_results(store: Any, columns: Iterable[str] | None = None):
-    """The finished rows of a store as a pandas DataFrame: its plain columns, or those of ``columns``
-    that it has."""
+    """The finished rows of a store.
+
+    Parameters
+    ----------
+    store : str or os.PathLike
+        A store directory.
+    columns : iterable of str, optional
+        The columns wanted (those the store lacks are left out); default every plain (not limb)
+        column.
+
+    Returns
+    -------
+    pandas.DataFrame
+    """
     from .store import read_store
 
     read_manifest(store)
@@ -121,7 +166,20 @@ def _success(df: Any) -> np.ndarray:
 
 
 def statistics(df: Any, manifest: dict) -> list[tuple[str, str]]:
-    """(name, value) rows describing an ensemble's results, by task."""
+    """Rows describing an ensemble's results, by task.
+
+    Parameters
+    ----------
+    df : pandas.DataFrame
+        The store's rows (``load_results``).
+    manifest : dict
+        The store's manifest (the sweep definition).
+
+    Returns
+    -------
+    list of (str, str)
+        (name, value) rows: members finished, reversible fractions, lifetimes ...
+    """
     d = manifest.get("definition", {})
     members = d.get("ensemble", {}).get("members")
     rows: list[tuple[str, str]] = []
@@ -147,8 +205,15 @@ def statistics(df: Any, manifest: dict) -> list[tuple[str, str]]:
         esc = ok & np.isfinite(lt)
         opts = d.get("options", {})
         tmax = opts.get("t_max")
-        rows.append(("escaped", f"{int(esc.sum())} ({esc.sum() / max(n, 1):.1%})"
-                     + (f" within t = {float(tmax):g}" if tmax is not None else "")))
+        within = f" within t = {float(tmax):g}" if tmax is not None else ""
+        if "outcome" in df.columns:
+            kind = np.asarray(df["outcome"], dtype=object)
+            for label, name in (("escaped", "escape"), ("merged", "merger"), ("collided", "collision")):
+                k = int(np.count_nonzero(esc & (kind == name)))
+                if k or name == "escape":
+                    rows.append((label, f"{k} ({k / max(n, 1):.1%}){within}"))
+        else:
+            rows.append(("escaped", f"{int(esc.sum())} ({esc.sum() / max(n, 1):.1%}){within}"))
         if esc.any():
             q = np.percentile(lt[esc], [10, 50, 90])
             rows.append(("lifetime: 10%, median, 90% (N-body units)", ", ".join(f"{v:.3g}" for v in q)))
@@ -229,7 +294,24 @@ def _label(store: Path, manifest: dict, settings: dict) -> str:
 
 
 def write_report(stores: Any, path: Any, title: str | None = None, threshold: float = 1e-10) -> Path:
-    """Write the HTML report on ``stores`` (a path or a list of paths) to ``path``; returns it."""
+    """Write one self-contained HTML report on one or more sweep stores.
+
+    Parameters
+    ----------
+    stores : path or sequence of paths
+        Store directories.
+    path : str or os.PathLike
+        The HTML file to write.
+    title : str, optional
+        Page title.
+    threshold : float, optional
+        Round-trip distance counted as reversible in the maps (default 1e-10).
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+    """
     from . import plots
 
     paths = [Path(stores)] if isinstance(stores, (str, Path)) else [Path(s) for s in stores]
