@@ -661,6 +661,7 @@ def merged(system: System, i: int, j: int) -> System:
     Parameters
     ----------
     system : System
+        The state at the merger (any precision; the result keeps it).
     i, j : int
         Two different body indices.
 
