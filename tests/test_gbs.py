@@ -262,3 +262,22 @@ def test_bad_integrate_arguments(kwargs, exc, word) -> None:
 def test_system_argument_checked() -> None:
     with pytest.raises(TypeError, match="system"):
         loschmidt.integrate("not a system", 1)
+
+
+@pytest.mark.parametrize("precision", ["f64", "dd", "qd"])
+def test_head_on_collision_ends_with_step_underflow(precision: str) -> None:
+    # Two unit masses released from rest 1 apart collide at t = pi/4 (the radial Kepler orbit:
+    # free-fall time pi/2 * sqrt(r^3 / (2 G M)) with r = 1, M = 2). In Cartesian coordinates the
+    # steps shrink without end on the way in; in dd and qd they stay above the first step floor
+    # for millions of steps, so the second floor (a tiny fraction of the mean step) must end it.
+    s = loschmidt.System([1, 1], [[0, 0], [1, 0]], [[0, 0], [0, 0]], precision=precision)
+    r = loschmidt.integrate(s, 2)
+    assert r.status == "step_underflow", r.status
+    assert r.steps <= 5000
+    assert abs(r.t - math.pi / 4) < 1e-8
+
+
+def test_energy_overflow_gives_an_infinite_energy_error_not_nan() -> None:
+    s = loschmidt.System([1, 1], [[0, 0], [1, 0]], [[1e200, 0], [0, 0]], precision="f64")
+    r = loschmidt.integrate(s, 0.5)
+    assert r.energy_error == math.inf

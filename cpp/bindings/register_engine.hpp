@@ -7,6 +7,7 @@
 
 #include "interrupt.hpp"
 #include "limbs.hpp"
+#include "loschmidt/batch.hpp"
 #include "loschmidt/methods/chain.hpp"
 #include "loschmidt/methods/gbs.hpp"
 #include "loschmidt/methods/status.hpp"
@@ -48,7 +49,7 @@ template <class T>
 py::dict run_summary(const State<T>& s, const T& t, const Stats& st, const T& e0) {
   using std::abs;
   const T e1 = energy(s);
-  const T de = e0 == T(0) ? abs(e1 - e0) : abs((e1 - e0) / e0);
+  const T de = detail::relative_energy_error(e1, e0);  // +inf when an energy is not finite
   const py::ssize_t n = s.n;
   py::dict d;
   d["positions"] = write_limbs<T>(s.x, {n, 3});

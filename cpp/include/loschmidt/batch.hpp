@@ -127,6 +127,9 @@ namespace detail {
 template <class T>
 T relative_energy_error(const T& e1, const T& e0) {
   using std::abs;
+  using std::isfinite;
+  // An energy that overflows (or a non-finite state) has no meaningful error: +inf, never NaN.
+  if (!isfinite(e0) || !isfinite(e1)) return T(std::numeric_limits<double>::infinity());
   return e0 == T(0) ? abs(e1 - e0) : abs((e1 - e0) / e0);
 }
 

@@ -310,6 +310,7 @@ Stats run_extrapolation(Problem& pb, State<T>& s, T& t, const T& t_end, const st
   // it a scale near t = 0. The span is deliberately not used: a long run must not forbid the
   // short steps of an early close encounter.
   double floor_scale = std::fabs(to_double(t));
+  const T t_begin = t;  // for the mean step (Options::min_step_ratio)
   const double wall_limit = opt.max_wall_time;
   const auto poll_interval = std::chrono::milliseconds(2);
   auto last_poll = clock_start;
@@ -357,6 +358,11 @@ Stats run_extrapolation(Problem& pb, State<T>& s, T& t, const T& t_end, const st
       // ---- budgets, checked before each attempt
       if (!fixed && !landing && !(hmag >= frac * std::max(std::fabs(to_double(t)), floor_scale))) {
         status = Status::step_underflow;
+        break;
+      }
+      if (!fixed && !landing && opt.min_step_ratio > 0 && st.steps >= 1000 &&
+          hmag < opt.min_step_ratio * std::fabs(to_double(t - t_begin)) / static_cast<double>(st.steps)) {
+        status = Status::step_underflow;  // shrinking without end: a collision singularity
         break;
       }
       if (attempts >= opt.max_steps) {

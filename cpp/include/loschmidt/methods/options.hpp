@@ -45,6 +45,14 @@ struct Options {
   // (H_0: the first step) ends the run with Status::step_underflow; steps shortened to land on a
   // requested time are exempt. 0 means 16 * scalar_traits<T>::epsilon().
   double min_step_fraction = 0.0;
+  // Second step floor (gbs): after 1000 accepted steps, a step smaller than min_step_ratio times
+  // the mean accepted step so far (time covered / accepted steps) also ends the run with
+  // Status::step_underflow. It catches the Zeno-like crawl into a collision singularity in
+  // Cartesian coordinates, where in dd or qd the steps shrink for millions of steps while staying
+  // above the first floor (a head-on collision from rest in dd: 10 million steps in 20 s without
+  // reaching it). 2^-50 (about 1e-15) is far below the step of any close encounter the gbs method
+  // can integrate usefully (use the chain method there); 0 switches the test off.
+  double min_step_ratio = 0x1p-50;
   // Called every few milliseconds (at a step boundary); returning true stops the run with
   // Status::interrupted. Empty means never called.
   std::function<bool()> poll;

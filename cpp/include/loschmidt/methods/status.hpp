@@ -27,7 +27,8 @@ struct StatusEntry {
 inline constexpr StatusEntry status_table[] = {
     {Status::success, "success", "The integration reached the requested final time."},
     {Status::step_underflow, "step_underflow",
-     "The step size fell below the step floor before the error tolerance could be met."},
+     "The step size fell below the step floor before the error tolerance could be met (as on the way into a "
+     "collision singularity: use the chain method there)."},
     {Status::max_steps, "max_steps", "The budget of steps was used up before the final time."},
     {Status::max_wall_time, "max_wall_time",
      "The wall-clock time budget was used up before the final time."},
