@@ -33,11 +33,12 @@ done
 echo "== sanitized build of loschmidt._core (build dir $work/build)"
 if [ ! -x "$work/venv/bin/python" ]; then
   python3 -m venv "$work/venv"
-  "$work/venv/bin/pip" install -q --disable-pip-version-check scikit-build-core pybind11 ninja cmake
+  "$work/venv/bin/pip" install -q --disable-pip-version-check scikit-build-core pybind11 ninja cmake 2>&1 \
+    | { grep -v "^WARNING: Location" || true; }
 fi
 "$work/venv/bin/pip" install -q --disable-pip-version-check --no-build-isolation \
   -Cbuild-dir="$work/build" -Ccmake.define.LOSCHMIDT_SANITIZE="$sanitizers" -Ccmake.build-type=RelWithDebInfo \
-  "$top[test]"
+  "$top[test]" 2>&1 | { grep -v "^WARNING: Location" || true; }
 
 echo "== Python tests under the sanitizers"
 preload=""
