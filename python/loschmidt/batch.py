@@ -102,6 +102,8 @@ def batch_options(
     steps = _positive_or_none(max_steps, "max_steps", integer=True)
     wall = _positive_or_none(max_wall_time, "max_wall_time")
     order = _positive_or_none(max_order, "max_order", integer=True)
+    if order is not None and order > 2**31 - 1:
+        raise ValueError(f"max_order: must be at most {2**31 - 1}, got {max_order}")
     if order is not None and order < 2:
         raise ValueError(f"max_order: must be at least 2, got {max_order}")
     h0 = _positive_or_none(initial_step, "initial_step")
@@ -168,7 +170,7 @@ def _threads(threads: Any, count: int) -> int:
         raise TypeError(f"threads: expected a positive integer, got {type(threads).__name__}")
     if threads < 1:
         raise ValueError(f"threads: must be at least 1, got {threads}")
-    return int(threads)
+    return int(min(threads, max(count, 1)))  # the engine uses at most one thread per system
 
 
 def _members(masses: Any, positions: Any, velocities: Any, prec: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

@@ -483,6 +483,14 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
   }
   const double s_ref0 = ctrl.proposal();
   double s_total = 0.0;  // fictitious time covered (magnitude), for the step floor
+  // Physical-time floor: a run of stalled accepted steps, each advancing t by less than
+  // frac * |t| (so t itself hardly moves), ends with Status::step_underflow. A regularized
+  // close passage takes a few dozen such steps at most; ten thousand in a row mean t no longer
+  // advances at this precision (a binary whose period is below eps |t|: without this the run
+  // would spin until max_steps with t frozen). A span that is merely very long in orbits (a
+  // period 1e-100 of it) is not caught here: the budgets (max_steps, max_wall_time) end it.
+  long long stalled = 0;
+  constexpr long long stall_limit = 10000;
 
   // Newton landing on t(H) = rem from the overshooting step (H_over, dt_over, dt/ds at its end).
   // First guess: the root of the cubic Hermite interpolant of t(s) on [0, H_over] built from
@@ -690,6 +698,14 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
         landed = true;
       } else {
         add_increment(stepper.increment());
+        const double tnow = std::fabs(to_double(time_now()));
+        stalled = std::fabs(to_double(dt_step)) < frac * tnow ? stalled + 1 : 0;
+        if (stalled >= stall_limit) {
+          s_total += hmag;
+          ++st.steps;
+          status = Status::step_underflow;
+          break;
+        }
       }
       s_total += hmag;
       ++st.steps;
