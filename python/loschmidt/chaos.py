@@ -54,9 +54,20 @@ __all__ = [
 class RoundTrip:
     """Outcome of ``roundtrip``.
 
-    ``delta`` is sqrt(sum |dr|^2 + |dv|^2) between the returned state and the start, computed in the
-    working precision (N-body units); ``nan`` when the forward leg did not finish (then ``backward``
-    and ``returned`` are None).
+    Attributes
+    ----------
+    delta : float
+        ``sqrt(sum |dr|^2 + |dv|^2)`` between the returned state and the start, computed in the
+        working precision (N-body units); NaN when the forward leg did not finish (then
+        ``backward`` and ``returned`` are None).
+    delta_position, delta_velocity : float
+        The position and velocity parts of ``delta``.
+    forward, backward : Result
+        The two legs (``backward`` integrates the reversed end state of ``forward``).
+    returned : System or None
+        The end of the return leg with its velocities reversed again, at the start's epoch.
+    start : System
+        The state the round trip began from.
     """
 
     delta: float
@@ -81,15 +92,26 @@ class RoundTrip:
         return self.forward.success and self.backward is not None and self.backward.success
 
     def reversible(self, threshold: float = 1e-10) -> bool:
-        """True when both legs finished and the start is recovered to within ``threshold``."""
-        _positive(threshold, "threshold")
-        return self.success and self.delta <= threshold
+        """Whether the start was recovered.
+
+        Parameters
+        ----------
+        threshold : float, optional
+            Largest ``delta`` that counts (default 1e-10).
+
+        Returns
+        -------
+        bool
+            True when both legs finished and ``delta <= threshold``.
+        """
+        limit = _positive(threshold, "threshold")
+        return self.success and self.delta <= limit
 
 
 def _positive(value: Any, name: str) -> float:
     if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
         raise TypeError(f"{name}: expected a number, got {type(value).__name__}")
-    v = float(value)
+    v = _p._real(value)
     if not math.isfinite(v) or v <= 0:
         raise ValueError(f"{name}: must be a positive finite number, got {value}")
     return v
@@ -104,7 +126,32 @@ def _check_system(system: Any) -> System:
 def roundtrip(system: System, t: Any, **options: Any) -> RoundTrip:
     """Integrate ``system`` to ``t``, reverse, integrate ``t`` more, reverse; compare with the start.
 
-    ``options`` are passed to ``integrate`` for both legs (``method``, ``tol``, budgets ...).
+    A Loschmidt test: a true solution comes back to where it started; the distance it misses by
+    measures the integration's error amplified by the dynamics.
+
+    Parameters
+    ----------
+    system : System
+        The start.
+    t : number or decimal string
+        Span of each leg.
+    **options
+        Options of ``loschmidt.integrate`` (``method``, ``tol``, budgets ...).
+        Used for both legs; ``times`` is not accepted.
+
+    Returns
+    -------
+    RoundTrip
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> s = loschmidt.ics.pythagorean("dd")
+    >>> rt = loschmidt.roundtrip(s, 10, method="chain")
+    >>> rt.success, rt.delta < 1e-20, rt.reversible()
+    (True, True, True)
+    >>> loschmidt.roundtrip(s.with_precision("f64"), 10, method="chain").delta > 1e-14
+    True
     """
     s = _check_system(system)
     if "times" in options:
@@ -128,8 +175,37 @@ def roundtrip(system: System, t: Any, **options: Any) -> RoundTrip:
 
 
 def displaced(system: System, perturbation: Any, body: int = 0, axis: int = 0, kind: str = "positions") -> System:
-    """A copy of ``system`` with one coordinate moved by ``perturbation`` (added in the working
-    precision; raises ``ValueError`` when the precision cannot resolve the change)."""
+    """A copy of ``system`` with one coordinate moved by ``perturbation``.
+
+    Parameters
+    ----------
+    system : System
+        The state.
+    perturbation : number or decimal string
+        Nonzero; added in the working precision.
+    body : int, optional
+        Index of the body (default 0).
+    axis : {0, 1, 2}, optional
+        Coordinate (default 0, x).
+    kind : {"positions", "velocities"}, optional
+        Which coordinate (default a position).
+
+    Returns
+    -------
+    System
+
+    Raises
+    ------
+    ValueError
+        When the precision cannot resolve the change at that coordinate.
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> s = loschmidt.ics.pythagorean("dd")
+    >>> loschmidt.chaos.displaced(s, "1e-25", body=2, axis=1).limbs("positions")[2, 1]
+    array([-1.e+00,  1.e-25])
+    """
     s = _check_system(system)
     if kind not in ("positions", "velocities"):
         raise ValueError(f"kind: expected 'positions' or 'velocities', got {kind!r}")
@@ -156,7 +232,19 @@ def displaced(system: System, perturbation: Any, body: int = 0, axis: int = 0, k
 
 @dataclass(frozen=True)
 class Amplification:
-    """Growth of a displacement: ``factor[i] = delta[i] / delta0`` at ``times[i]`` (offsets from the start)."""
+    """Growth of a displacement: ``factor[i] = delta[i] / delta0`` at ``times[i]``.
+
+    Attributes
+    ----------
+    times : numpy.ndarray
+        Output times, offsets from the start.
+    delta : numpy.ndarray
+        Phase-space distance of the two runs at ``times``.
+    delta0 : float
+        Their distance at the start.
+    reference, perturbed : Result
+        The two runs.
+    """
 
     times: np.ndarray
     delta: np.ndarray
@@ -166,12 +254,13 @@ class Amplification:
 
     @property
     def factor(self) -> np.ndarray:
+        """A(t) = delta / delta0 at ``times``."""
         return self.delta / self.delta0
 
     @property
     def final(self) -> float:
-        """A at the last output time."""
-        return float(self.factor[-1])
+        """A at the last output time (NaN when no output time was reached)."""
+        return float(self.factor[-1]) if len(self.delta) else float("nan")
 
 
 def _default_times(t: Any, count: int, prec: str) -> list:
@@ -190,11 +279,38 @@ def amplification(
     times: Sequence[Any] | None = None,
     **options: Any,
 ) -> Amplification:
-    """Integrate ``system`` and a copy with coordinate ``axis`` of body ``body`` displaced by
-    ``perturbation``; report A(t) = delta(t) / delta(0) at ``times`` (default: 64 even steps to t).
+    """Integrate ``system`` and a displaced copy; report A(t) = delta(t) / delta(0).
 
-    Both runs use the same ``options`` (see ``integrate``). The displacement is exact in the working
-    precision; choose it well above the integration error (tol) and well below one.
+    Both runs use the same ``options``. The displacement is exact in the working precision; choose
+    it well above the integration error (tol) and well below one.
+
+    Parameters
+    ----------
+    system : System
+        The start.
+    t : number or decimal string
+        Span.
+    perturbation : number or decimal string, optional
+        Displacement of the coordinate (default 1e-20).
+    body : int, optional
+        Body displaced (default 0).
+    axis : {0, 1, 2}, optional
+        Coordinate displaced (default 0).
+    times : sequence of numbers, optional
+        Output times (default: 64 even steps to ``t``).
+    **options
+        Options of ``loschmidt.integrate`` (``method``, ``tol``, budgets ...).
+
+    Returns
+    -------
+    Amplification
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> a = loschmidt.amplification(loschmidt.ics.pythagorean("dd"), 10, method="chain")
+    >>> len(a.times), 10 < a.final < 30
+    (64, True)
     """
     s = _check_system(system)
     pert = displaced(s, perturbation, body, axis)
@@ -213,8 +329,16 @@ def amplification(
 class Growth:
     """Accumulated growth of the most unstable direction, from renormalised twin trajectories.
 
-    ``log_factor[i]`` is ln A at ``times[i]``; ``exponent`` the finite-time Lyapunov exponent
-    ln A(t) / t; ``efolding_time`` its inverse.
+    Attributes
+    ----------
+    times : numpy.ndarray
+        Ends of the intervals, offsets from the start.
+    log_factor : numpy.ndarray
+        ln A accumulated at ``times``.
+    delta0 : float
+        The distance the twin is pulled back to after each interval.
+    result : Result
+        The reference run's last interval.
     """
 
     times: np.ndarray
@@ -224,14 +348,19 @@ class Growth:
 
     @property
     def factor(self) -> np.ndarray:
+        """A at ``times``, ``exp(log_factor)``."""
         return np.exp(self.log_factor)
 
     @property
     def exponent(self) -> float:
-        return float(self.log_factor[-1] / self.times[-1]) if self.times[-1] != 0 else float("nan")
+        """Finite-time Lyapunov exponent ln A(t) / t at the last time."""
+        if not len(self.times) or self.times[-1] == 0:  # no interval completed
+            return float("nan")
+        return float(self.log_factor[-1] / self.times[-1])
 
     @property
     def efolding_time(self) -> float:
+        """1 / exponent (inf when the exponent is not positive)."""
         lam = self.exponent
         return float("inf") if lam <= 0 else 1.0 / lam
 
@@ -247,13 +376,40 @@ def growth(
     (Benettin, Galgani & Strelcyn 1976; Benettin et al. 1980): the twin is pulled back to distance
     ``perturbation`` after each of ``intervals`` equal intervals and the log growth is summed.
 
-    ``perturbation`` defaults to sqrt(tol) scaled into the working precision's useful range.
+    Parameters
+    ----------
+    system : System
+        The start.
+    t : number or decimal string
+        Span (nonzero).
+    perturbation : float, optional
+        Distance of the twin after each renormalisation; default sqrt(tol) scaled into the working
+        precision's useful range (at most 1e-6).
+    intervals : int, optional
+        Number of equal intervals (default 100).
+    **options
+        Options of ``loschmidt.integrate`` (``method``, ``tol``, budgets ...).
+
+    Returns
+    -------
+    Growth
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> g = loschmidt.growth(loschmidt.ics.pythagorean("dd"), 10, intervals=10, method="chain")
+    >>> round(g.exponent, 2), round(g.efolding_time, 1)
+    (0.28, 3.5)
     """
     s = _check_system(system)
     if not isinstance(intervals, numbers.Integral) or isinstance(intervals, bool) or intervals < 1:
         raise ValueError(f"intervals: expected a positive integer, got {intervals!r}")
+    if intervals > MAX_INTERVALS:  # each interval costs two integrations
+        raise ValueError(f"intervals: at most {MAX_INTERVALS}, got {intervals}")
     prec = s.precision
-    tol = options.get("tol") or DEFAULT_TOLERANCE[prec]
+    from .integrate import check_tolerance
+
+    tol = check_tolerance(options.get("tol"), prec, "tol")
     d0 = _positive(perturbation, "perturbation") if perturbation is not None else max(math.sqrt(tol), 1e-30) * 1e3
     d0 = min(d0, 1e-6)
     tf = _p.to_fraction(_p.to_limbs(t, prec, name="t"))
@@ -286,6 +442,10 @@ def growth(
     return Growth(np.array(ts), np.array(logs), d0, last)
 
 
+#: Most intervals ``growth`` accepts (two integrations each: beyond it, hours of work).
+MAX_INTERVALS = 10**6
+
+
 def _rescaled(ref: System, twin: System, factor: float) -> System:
     """ref + factor * (twin - ref), in the working precision."""
     prec = ref.precision
@@ -311,8 +471,8 @@ class Lyapunov:
     times : ndarray
         Output times (float64 offsets from the start) that were reached.
     log_growth : ndarray
-        ln(|w(t)| / |w(0)|) at ``times``, w = (dx, dv) the tangent vector in the phase-space norm
-        sqrt(sum_i |dx_i|^2 + |dv_i|^2) (N-body units, as ``phase_distance``).
+        ``ln(|w(t)| / |w(0)|)`` at ``times``, w = (dx, dv) the tangent vector in the phase-space norm
+        ``sqrt(sum_i |dx_i|^2 + |dv_i|^2)`` (N-body units, as ``phase_distance``).
     final_log_growth : float
         ln growth at the time reached, ``span``.
     span : float
@@ -346,10 +506,12 @@ class Lyapunov:
 
     @property
     def status(self) -> str:
+        """The orbit's status."""
         return self.result.status
 
     @property
     def success(self) -> bool:
+        """Whether the orbit's run finished (``Result.success``)."""
         return self.result.success
 
 
@@ -396,6 +558,9 @@ def _check_tangent(tangent: Any, n: int) -> np.ndarray:
     if isinstance(tangent, (str, bytes)):
         raise TypeError("tangent: expected an array of shape (2, N, 3) or (2, N, 2)")
     try:
+        kind = np.asarray(tangent).dtype.kind
+        if kind in "bcmMSUV":
+            raise TypeError
         w = np.array(tangent, dtype=float)
     except (TypeError, ValueError):
         raise TypeError("tangent: expected an array of shape (2, N, 3) or (2, N, 2)") from None
@@ -405,10 +570,11 @@ def _check_tangent(tangent: Any, n: int) -> np.ndarray:
         w = np.concatenate([w, np.zeros((2, n, 1))], axis=2)
     if not np.all(np.isfinite(w)):
         raise ValueError("tangent: must be finite")
-    norm = math.sqrt(float(np.sum(w * w)))
-    if not norm > 0 or not math.isfinite(norm):
-        raise ValueError("tangent: must be a nonzero vector of finite norm")
-    return w / norm
+    big = float(np.max(np.abs(w)))
+    if not big > 0:
+        raise ValueError("tangent: must be a nonzero vector")
+    w = w / big  # the norm of a vector of huge or tiny components neither overflows nor underflows
+    return w / math.sqrt(float(np.sum(w * w)))
 
 
 def lyapunov(
@@ -429,35 +595,47 @@ def lyapunov(
     options and ``times``, and the tangent, whose size is arbitrary, never sets the step; the
     tangent is extrapolated with the orbit's rows and is typically 10^2-10^3 times less accurate
     than the orbit (its local error is the derivative of the orbit's). The tangent equations are
-    linear, so renormalising only rescales: whenever |w| leaves [1/renormalize, renormalize] it is
+    linear, so renormalising only rescales: whenever ``|w|`` leaves [1/renormalize, renormalize] it is
     multiplied by an exact power of two and the log of the factor accumulated (the result does
     not depend on ``renormalize``).
 
     Parameters
     ----------
     system : System
+        The start.
     t : number or decimal string
-        Span (nonzero; negative: backward; the exponent uses |t|).
+        Span (nonzero; negative: backward; the exponent uses ``abs(t)``).
     times : sequence of numbers, optional
         Output times for the series, as for ``integrate``; default 100 evenly spaced in (0, t].
-    method : {"gbs"}
-    renormalize : float
+    method : {"gbs"}, optional
+        The only method with variational equations.
+    renormalize : float, optional
         Bound on the tangent norm, in [2, 2^300] (default 1e16).
     tangent : array (2, N, 3) or (2, N, 2), optional
         Initial tangent (position part, velocity part), normalised here. Default
         ``default_tangent(system, seed)``: a fixed pseudo-random direction, in the plane for a
         planar system (include z parts to follow out-of-plane perturbations too).
-    seed : int
-        Seed of the default tangent.
-    options : ``tol``, ``atol``, ``max_steps``, ``max_wall_time``, ``max_order``, ``initial_step``,
+    seed : int, optional
+        Seed of the default tangent (default 0).
+    **options
+        ``tol``, ``atol``, ``max_steps``, ``max_wall_time``, ``max_order``, ``initial_step``,
         ``fixed_step``, as for ``integrate``.
 
     Returns
     -------
     Lyapunov
+        The growth series, the exponent and the orbit's ``Result``.
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> lam = loschmidt.lyapunov(loschmidt.ics.pythagorean("dd"), 10)
+    >>> lam.success, round(lam.exponent, 2), len(lam.times)
+    (True, 0.33, 100)
     """
     from . import _core
-    from .integrate import _check_method, _output_times, _positive_or_none, _time_limbs, _wrap, check_tolerance
+    from .integrate import (_check_fixed_budget, _check_method, _output_times, _positive_or_none, _time_limbs,
+                            _wrap, check_tolerance)
 
     s = _check_system(system)
     if not isinstance(method, str):
@@ -486,7 +664,8 @@ def lyapunov(
     wall = _positive_or_none(options.get("max_wall_time"), "max_wall_time") or math.inf
     fixed = options.get("fixed_step")
     h_fixed = 0.0 if fixed is None else _positive_or_none(fixed, "fixed_step")
-    order = _positive_or_none(options.get("max_order"), "max_order", integer=True) or 0
+    order = _positive_or_none(options.get("max_order"), "max_order", integer=True, maximum=2**31 - 1) or 0
+    _check_fixed_budget(fixed, t_limbs, options.get("max_steps"), steps)
     if order and order < 3 and fixed is None:
         raise ValueError(f"max_order: must be at least 3, got {order}")
     h0 = options.get("initial_step")
@@ -528,6 +707,24 @@ _ORDER = ("f64", "dd", "qd")
 
 @dataclass(frozen=True)
 class ConvergenceRun:
+    """One run of ``converge``'s ladder.
+
+    Attributes
+    ----------
+    precision : str
+        Its working precision.
+    tol : float
+        Its tolerance.
+    status : str
+        How it ended.
+    evaluations : int
+        Force evaluations.
+    wall_time : float
+        Seconds in the engine.
+    digits : float or None
+        Agreement with the previous successful run (None for the first, or when it failed).
+    """
+
     precision: str
     tol: float
     status: str
@@ -538,9 +735,27 @@ class ConvergenceRun:
 
 @dataclass(frozen=True)
 class Convergence:
-    """Outcome of ``converge``: ``digits`` is the agreement actually observed between the last two
-    successful runs (``0`` when fewer than two finished); ``converged`` tells whether it reached
-    the digits asked for; ``system`` is the state of the most accurate finished run."""
+    """Outcome of ``converge``.
+
+    Attributes
+    ----------
+    digits : float
+        The agreement actually observed between the last two successful runs (0 when fewer than
+        two finished).
+    requested : float
+        The digits asked for.
+    converged : bool
+        Whether ``digits`` reached ``requested``.
+    runs : tuple of ConvergenceRun
+        Every run, in order.
+    system : System or None
+        The state of the most accurate finished run.
+    result : Result or None
+        That run.
+    reason : str
+        Why the ladder stopped (``"converged"``, ``"budget spent"``, ``"ladder exhausted"``,
+        ``"max_runs reached"``).
+    """
 
     digits: float
     requested: float
@@ -590,20 +805,52 @@ def converge(
 
     Parameters
     ----------
-    system, t : the problem (see ``integrate``).
-    digits : significant digits asked for.
-    budget : seconds of wall time for all runs together; each run is capped by what is left.
-    precisions : ladder of precisions to climb; default from the system's precision upward.
-    options : other ``integrate`` options (``method``, ``max_steps``); ``tol`` is set by the ladder.
+    system : System
+        The start.
+    t : number or decimal string
+        Span, as for ``integrate``.
+    digits : float, optional
+        Significant digits asked for (default 10).
+    budget : float, optional
+        Seconds of wall time for all runs together (default 600); each run is capped by what is
+        left.
+    precisions : sequence of str, optional
+        Ladder of precisions to climb; default from the system's precision upward
+        (f64 -> dd -> qd). Each climbs the tolerances of ``LADDER``.
+    max_runs : int, optional
+        Most runs in all (default 24).
+    **options
+        Other ``integrate`` options (``method``, ``max_steps`` ...); ``tol`` is set by the ladder.
+
+    Returns
+    -------
+    Convergence
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> c = loschmidt.converge(loschmidt.ics.pythagorean("f64"), 10, digits=10, method="chain")
+    >>> c.converged, c.digits >= 10, c.system.precision
+    (True, True, 'dd')
+    >>> [(r.precision, r.tol) for r in c.runs][:2]
+    [('f64', 1e-08), ('f64', 1e-10)]
     """
     s = _check_system(system)
     req = _positive(digits, "digits")
     bud = _positive(budget, "budget")
+    if isinstance(max_runs, (bool, np.bool_)) or not isinstance(max_runs, numbers.Integral) or max_runs < 1:
+        raise ValueError(f"max_runs: expected a positive integer, got {max_runs!r}")
+    if isinstance(precisions, (str, bytes)):
+        raise TypeError(f"precisions: expected a sequence of precision names, got {precisions!r}")
     if "tol" in options:
         raise ValueError("tol: set by converge's tolerance ladder; do not pass it")
     if precisions is None:
         start = "f64" if s.precision in ("f64", "f64c") else s.precision
         precisions = _ORDER[_ORDER.index(start):]
+    try:
+        precisions = list(precisions)
+    except TypeError:
+        raise TypeError(f"precisions: expected a sequence of precision names, got {type(precisions).__name__}") from None
     for p in precisions:
         _p.check_precision(p, "precisions")
     t0 = _time.perf_counter()
@@ -648,12 +895,28 @@ def converge(
 class Threshold:
     """Smallest initial perturbation that the dynamics amplifies to order unity within t.
 
-    ``delta`` is in N-body units; ``metres`` and ``planck_lengths`` are set when a ``units.Scale`` was
-    given. ``amplification`` is the maximal growth factor A(t) (from renormalised twins).
-    ``numerical_floor`` is the integration's own error expressed as an initial perturbation
-    (round-trip distance / A; Portegies Zwart & Boekholt 2018 relate the two); ``trustworthy`` says
-    whether that floor lies below ``margin * delta`` (default margin 0.01), i.e. whether the
-    integration at this precision resolves perturbations well below the threshold.
+    Attributes
+    ----------
+    delta : float
+        The threshold 1 / A in N-body units.
+    amplification : float
+        The maximal growth factor A(t) (from renormalised twins).
+    exponent : float
+        The finite-time Lyapunov exponent ln A / t.
+    metres, planck_lengths : float or None
+        ``delta`` in metres and in Planck lengths, when a ``units.Scale`` was given.
+    roundtrip_delta : float
+        Distance of a round trip at the system's precision.
+    numerical_floor : float
+        The integration's own error expressed as an initial perturbation (round-trip distance / A;
+        Portegies Zwart & Boekholt 2018 relate the two).
+    trustworthy : bool
+        Whether that floor lies below ``margin * delta`` (default margin 0.01), i.e. whether the
+        integration at this precision resolves perturbations well below the threshold.
+    precision : str
+        The working precision.
+    growth : Growth
+        The growth computation behind ``amplification``.
     """
 
     delta: float
@@ -682,6 +945,36 @@ def irreversibility_threshold(
     With ``scale`` (a ``loschmidt.units.Scale``) it is also given in metres and in Planck lengths.
     A round trip at the system's precision tells whether the integration itself is accurate enough
     to resolve perturbations of that size.
+
+    Parameters
+    ----------
+    system : System
+        The start.
+    t : number or decimal string
+        Span.
+    scale : loschmidt.units.Scale, optional
+        Physical units, for the threshold in metres and Planck lengths.
+    intervals : int, optional
+        Renormalisation intervals of ``growth`` (default 100).
+    margin : float, optional
+        The integration is ``trustworthy`` when its floor is below ``margin`` times the threshold
+        (default 0.01).
+    **options
+        Options of ``integrate`` for the growth runs and the round trip (``method``, ``tol`` ...).
+
+    Returns
+    -------
+    Threshold
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> from loschmidt import units
+    >>> scale = units.Scale(mass=1e6, length=units.PARSEC)
+    >>> th = loschmidt.irreversibility_threshold(loschmidt.ics.pythagorean("dd"), 10, scale=scale,
+    ...                                          method="chain", intervals=10)
+    >>> th.trustworthy, 1e-3 < th.delta < 1, th.planck_lengths > 1e45
+    (True, True, True)
     """
     s = _check_system(system)
     margin = _positive(margin, "margin")

@@ -270,6 +270,8 @@ def load_config(path: Any) -> tuple[dict, str]:
         text = p.read_text(encoding="utf-8")
     except OSError as exc:
         raise ConfigError(f"{p}: cannot read ({exc.strerror or exc})") from None
+    except UnicodeDecodeError as exc:  # TOML files are UTF-8
+        raise ConfigError(f"{p}: not valid TOML (not UTF-8 text: {exc.reason} at byte {exc.start})") from None
     try:
         data = _toml().loads(text)
     except ValueError as exc:  # tomllib.TOMLDecodeError is a ValueError

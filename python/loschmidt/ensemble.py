@@ -33,12 +33,23 @@ def _float_array(value: Any, name: str) -> np.ndarray:
         arr = value
     else:
         try:
-            arr = np.asarray(value, dtype=np.float64)
-        except (TypeError, ValueError):
+            raw = np.asarray(value)
+            if raw.dtype.kind in "bcmMSUV":  # booleans, complex numbers (their imaginary part), dates, text
+                raise TypeError
+            arr = np.asarray(raw, dtype=np.float64)
+        except (TypeError, ValueError, OverflowError):
             raise TypeError(f"{name} must be an array of real numbers") from None
     if not np.all(np.isfinite(arr)):
         raise ValueError(f"{name} must be finite")
     return arr
+
+
+def _ndim(value: Any) -> int:
+    """Dimensions of an array-like; -1 for a ragged sequence."""
+    try:
+        return np.ndim(value)
+    except ValueError:
+        return -1
 
 
 def _readonly(arr: np.ndarray) -> np.ndarray:
@@ -75,7 +86,39 @@ def _vectors(value: Any, name: str, m: int | None, n: int | None) -> np.ndarray:
 
 
 class Ensemble:
-    """M few-body initial conditions of one family (see the module docstring)."""
+    """M few-body initial conditions of one family (see the module docstring).
+
+    Parameters
+    ----------
+    masses : array-like, shape (M, N) or (N,)
+        Positive masses; one row shared by every member when 1-D.
+    positions, velocities : array-like, shape (M, N, 3), (M, N, 2), (N, 3) or (N, 2)
+        float64 values (planar input means z = 0); a 2-D array is shared by every member. At least
+        one of the two must be 3-D to fix M.
+    params : mapping of str to (M,) arrays, optional
+        Per-member descriptors (numeric, boolean or string arrays; names are identifiers).
+    family : str, optional
+        Name of the generator (default ``"custom"``).
+    radii : array-like, shape (M, N) or (N,), optional
+        Non-negative body radii.
+    meta : mapping of str to scalars, optional
+        Scalars (or tuples of them) describing the whole ensemble.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from loschmidt.ensemble import Ensemble
+    >>> pos = np.zeros((4, 3, 3))
+    >>> pos[:, 1, 0] = 1.0
+    >>> pos[:, 2, 1] = [1.0, 2.0, 3.0, 4.0]
+    >>> ens = Ensemble([1.0, 1.0, 1.0], pos, np.zeros((3, 3)), params={"y": pos[:, 2, 1]})
+    >>> len(ens), ens.n, ens.member_params(2)
+    (4, 3, {'y': 3.0})
+    >>> ens[1:3].params["y"]
+    array([2., 3.])
+    >>> ens.system(0, "qd").precision
+    'qd'
+    """
 
     __slots__ = ("_masses", "_positions", "_velocities", "_radii", "_params", "_family", "_meta")
 
@@ -91,11 +134,11 @@ class Ensemble:
     ) -> None:
         if not isinstance(family, str) or not family:
             raise ValueError(f"family must be a non-empty string, got {family!r}")
-        if np.ndim(positions) == 3:
+        if _ndim(positions) == 3:
             pos = _vectors(positions, "positions", None, None)
             m, n = pos.shape[0], pos.shape[1]
             vel = _vectors(velocities, "velocities", m, n)
-        elif np.ndim(velocities) == 3:
+        elif _ndim(velocities) == 3:
             vel = _vectors(velocities, "velocities", None, None)
             m, n = vel.shape[0], vel.shape[1]
             pos = _vectors(positions, "positions", m, n)
@@ -145,7 +188,10 @@ class Ensemble:
         for key, value in params.items():
             if not isinstance(key, str) or not key.isidentifier():
                 raise ValueError(f"params keys must be identifiers, got {key!r}")
-            arr = np.asarray(value)
+            try:
+                arr = np.asarray(value)
+            except ValueError:  # ragged
+                raise ValueError(f"params[{key!r}] must have shape ({m},), not a ragged sequence") from None
             if arr.dtype == object:
                 raise TypeError(f"params[{key!r}] must be a numeric, boolean or string array")
             if arr.shape != (m,):
@@ -211,10 +257,12 @@ class Ensemble:
 
     @property
     def meta(self) -> dict:
+        """Scalars describing the whole ensemble (grid size, seed ...; a new dict)."""
         return dict(self._meta)
 
     @property
     def family(self) -> str:
+        """Name of the generator (``"free_fall_grid"``, ``"custom"`` ...)."""
         return self._family
 
     @property
@@ -239,7 +287,20 @@ class Ensemble:
         return i % m
 
     def system(self, i: Any, precision: str = "dd"):
-        """Member ``i`` as a ``loschmidt.System`` in ``precision`` (exact: its values are doubles)."""
+        """One member as a System.
+
+        Parameters
+        ----------
+        i : int
+            Member index (negative counts from the end).
+        precision : {"f64", "f64c", "dd", "qd"}, optional
+            Working precision of the System (default ``"dd"``); exact in every precision, since the
+            member's values are doubles.
+
+        Returns
+        -------
+        System
+        """
         import loschmidt
         from loschmidt.precision import limb_count
 
@@ -261,7 +322,17 @@ class Ensemble:
         )
 
     def systems(self, precision: str = "dd") -> Iterator:
-        """Every member as a System (one Python object each: for small ensembles)."""
+        """Every member as a System (one Python object each: for small ensembles).
+
+        Parameters
+        ----------
+        precision : {"f64", "f64c", "dd", "qd"}, optional
+            Working precision of the Systems (default ``"dd"``).
+
+        Yields
+        ------
+        System
+        """
         for i in range(len(self)):
             yield self.system(i, precision)
 
@@ -269,7 +340,18 @@ class Ensemble:
         return self.systems()
 
     def member_params(self, i: Any) -> dict:
-        """The params of member ``i`` as a dict of Python scalars."""
+        """The params of one member.
+
+        Parameters
+        ----------
+        i : int
+            Member index.
+
+        Returns
+        -------
+        dict
+            Name -> Python scalar.
+        """
         i = self._index(i)
         return {k: v[i].item() for k, v in self._params.items()}
 
@@ -299,7 +381,17 @@ class Ensemble:
         )
 
     def chunks(self, size: Any) -> Iterator["Ensemble"]:
-        """Consecutive sub-ensembles (views) of at most ``size`` members."""
+        """Consecutive sub-ensembles (views).
+
+        Parameters
+        ----------
+        size : int
+            Members per chunk (the last may have fewer).
+
+        Yields
+        ------
+        Ensemble
+        """
         if isinstance(size, (bool, np.bool_)) or not isinstance(size, (int, np.integer)) or size < 1:
             raise ValueError(f"size must be a positive integer, got {size!r}")
         size = int(size)
@@ -310,8 +402,16 @@ class Ensemble:
     def concat(cls, ensembles: Sequence["Ensemble"]) -> "Ensemble":
         """Join ensembles with the same number of bodies and the same params names.
 
-        The family is kept when all agree (``"mixed"`` otherwise); meta entries are kept where all
-        agree.
+        Parameters
+        ----------
+        ensembles : sequence of Ensemble
+            At least one; all with or all without radii.
+
+        Returns
+        -------
+        Ensemble
+            The members of each in turn. The family is kept when all agree (``"mixed"``
+            otherwise); meta entries are kept where all agree.
         """
         items = list(ensembles)
         if not items:
@@ -349,12 +449,24 @@ class Ensemble:
 
     # float64 diagnostics (G = 1) -----------------------------------------------------------------
     def kinetic_energy(self) -> np.ndarray:
-        """(M,) sum of m v^2 / 2."""
+        """Kinetic energy of each member (float64).
+
+        Returns
+        -------
+        numpy.ndarray, shape (M,)
+            Sum of m v^2 / 2.
+        """
         v2 = np.einsum("mnk,mnk->mn", self._velocities, self._velocities)
         return 0.5 * np.einsum("mn,mn->m", self._masses, v2)
 
     def potential_energy(self) -> np.ndarray:
-        """(M,) -sum over pairs of m_i m_j / r_ij (negative)."""
+        """Potential energy of each member (float64).
+
+        Returns
+        -------
+        numpy.ndarray, shape (M,)
+            Minus the sum over pairs of m_i m_j / r_ij.
+        """
         u = np.zeros(len(self))
         with np.errstate(divide="ignore"):  # coincident bodies give -inf, not a warning
             return self._pair_sum(u)
@@ -368,13 +480,28 @@ class Ensemble:
         return u
 
     def energy(self) -> np.ndarray:
-        """(M,) total energy."""
+        """Total energy of each member (float64).
+
+        Returns
+        -------
+        numpy.ndarray, shape (M,)
+        """
         return self.kinetic_energy() + self.potential_energy()
 
     def momentum(self) -> np.ndarray:
-        """(M, 3) total linear momentum."""
+        """Total linear momentum of each member (float64).
+
+        Returns
+        -------
+        numpy.ndarray, shape (M, 3)
+        """
         return np.einsum("mn,mnk->mk", self._masses, self._velocities)
 
     def angular_momentum(self) -> np.ndarray:
-        """(M, 3) total angular momentum about the origin."""
+        """Total angular momentum of each member about the origin (float64).
+
+        Returns
+        -------
+        numpy.ndarray, shape (M, 3)
+        """
         return np.einsum("mn,mnk->mk", self._masses, np.cross(self._positions, self._velocities))

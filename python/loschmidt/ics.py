@@ -6,7 +6,8 @@ conditions of each member. Seeded families draw from ``numpy.random.default_rng(
 batches of 4096 candidates, so a given (arguments, seed) always gives the same bits; for
 ``free_fall_random`` and ``virial_triples`` asking for fewer members gives a prefix of the larger draw.
 
-Single configurations
+Single configurations:
+
 - :func:`pythagorean`  masses 3, 4, 5 at rest at (1, 3), (-2, -1), (1, -1): exact integers,
   E = -769/60, L = 0 (Burrau 1913; Szebehely & Peters 1967, AJ 72, 876).
 - :func:`figure_eight` the published eight-digit decimal initial conditions (Chenciner & Montgomery
@@ -17,7 +18,8 @@ Single configurations
 - :func:`binary`, :func:`hierarchical` pairs and triples from orbital elements.
 - :func:`plummer` a small Plummer sphere (Plummer 1911; sampling of Aarseth, Henon & Wielen 1974).
 
-Ensembles
+Ensembles:
+
 - :func:`free_fall_grid`, :func:`free_fall_random` the free-fall problem over the Agekyan-Anosova
   region (Agekyan & Anosova 1967).
 - :func:`virial_triples` random triples in virial equilibrium with a chosen angular momentum.
@@ -57,16 +59,32 @@ _BATCH = 4096  # candidates drawn per batch by the seeded families (fixed: resul
 _STALL = 64  # batches without a usable candidate before a virial target is declared out of reach
 
 #: Period of the figure-eight orbit from the published digits (Chenciner & Montgomery 2000).
+#: A float: pass the decimal string ``"6.32591398"`` to keep more than double precision of it.
 FIGURE_EIGHT_PERIOD = 6.32591398
 
 
 # ---------------------------------------------------------------------------------------------
 # helpers
 # ---------------------------------------------------------------------------------------------
-def _system(masses, positions, velocities, precision):
+def _system(masses, positions, velocities, precision, context: str = ""):
     import loschmidt
 
-    return loschmidt.System(masses, positions, velocities, precision=precision)
+    try:
+        return loschmidt.System(masses, positions, velocities, precision=precision)
+    except ValueError as exc:  # e.g. bodies that coincide, or values beyond double range, once rounded
+        if not context:
+            raise
+        raise ValueError(f"{context}: the configuration cannot be held in precision {precision!r} ({exc})") from None
+
+
+def _three(masses: Any) -> bool:
+    """Whether ``masses`` is a sequence of three entries."""
+    if isinstance(masses, (str, bytes)):
+        return False
+    try:
+        return len(masses) == 3
+    except TypeError:  # no length, or a 0-d array
+        return False
 
 
 def _fraction(value: Any, name: str) -> Fraction:
@@ -76,9 +94,9 @@ def _fraction(value: Any, name: str) -> Fraction:
     if isinstance(value, mpmath.mpf):
         if not mpmath.isfinite(value):
             raise ValueError(f"{name} must be finite, got {value!r}")
-        man, exp = value.man_exp  # note: man_exp drops the sign
-        q = Fraction(man) * (Fraction(2) ** exp)
-        return -q if value < 0 else q
+        from .precision import exact_fraction
+
+        return exact_fraction(value, name)  # refuses exponents whose exact value would be huge
     if isinstance(value, (int, np.integer)):
         return Fraction(int(value))
     if isinstance(value, (float, np.floating)):
@@ -93,7 +111,9 @@ def _fraction(value: Any, name: str) -> Fraction:
     if isinstance(value, Decimal):
         if not value.is_finite():
             raise ValueError(f"{name} must be finite, got {value!r}")
-        return Fraction(value)
+        from .precision import exact_fraction
+
+        return exact_fraction(value, name)  # refuses exponents whose exact value would be huge
     if isinstance(value, numbers.Rational):
         return Fraction(int(value.numerator), int(value.denominator))
     raise TypeError(f"{name} must be int, float, str, Decimal, Fraction or mpmath.mpf, got {type(value).__name__}")
@@ -150,22 +170,63 @@ def _positive_mp(value: Any, name: str) -> mpmath.mpf:
 # classic configurations
 # ---------------------------------------------------------------------------------------------
 def pythagorean(precision: str = "dd"):
-    """The Pythagorean three-body problem: masses 3, 4, 5 at rest at the corners of a 3-4-5 right
-    triangle, (1, 3), (-2, -1), (1, -1) (Burrau 1913; Szebehely & Peters 1967). All values are
-    small integers, exact in every precision; the centre of mass is at the origin, E = -769/60, L = 0.
+    """The Pythagorean three-body problem (Burrau 1913; Szebehely & Peters 1967, AJ 72, 876).
+
+    Masses 3, 4, 5 at rest at the corners of a 3-4-5 right triangle, (1, 3), (-2, -1), (1, -1).
+    All values are small integers, exact in every precision; the centre of mass is at the origin,
+    E = -769/60, L = 0.
+
+    Parameters
+    ----------
+    precision : {"f64", "f64c", "dd", "qd"}, optional
+        Working precision of the System (default ``"dd"``).
+
+    Returns
+    -------
+    System
+
+    Examples
+    --------
+    >>> from loschmidt import ics
+    >>> s = ics.pythagorean("qd")
+    >>> s.masses, s.precision
+    (array([3., 4., 5.]), 'qd')
+    >>> from fractions import Fraction
+    >>> from loschmidt.precision import to_fraction
+    >>> to_fraction(s.energy(limbs=True)) - Fraction(-769, 60) < Fraction(1, 10**60)
+    True
     """
     _check_precision(precision)
     return _system([3, 4, 5], [[1, 3, 0], [-2, -1, 0], [1, -1, 0]], [[0, 0, 0]] * 3, precision)
 
 
 def figure_eight(precision: str = "dd"):
-    """The figure-eight choreography of three unit masses (Moore 1993; Chenciner & Montgomery 2000,
-    initial conditions by Simo): x1 = -x2 = (0.97000436, -0.24308753), x3 = 0,
-    v3 = (-0.93240737, -0.86473146), v1 = v2 = -v3/2, period ``FIGURE_EIGHT_PERIOD`` = 6.32591398.
+    """The figure-eight choreography of three unit masses (Moore 1993; Chenciner & Montgomery 2000).
 
+    Initial conditions by Simo: x1 = -x2 = (0.97000436, -0.24308753), x3 = 0,
+    v3 = (-0.93240737, -0.86473146), v1 = v2 = -v3/2, period ``FIGURE_EIGHT_PERIOD`` = 6.32591398.
     The digits are passed as decimal strings (-v3/2 is exact in decimal), so each precision holds the
     published numbers to its own accuracy; the total momentum and angular momentum of these digits
     are exactly zero, E = -1.287142 (from these digits).
+
+    Parameters
+    ----------
+    precision : {"f64", "f64c", "dd", "qd"}, optional
+        Working precision of the System (default ``"dd"``).
+
+    Returns
+    -------
+    System
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> s = loschmidt.ics.figure_eight("dd")
+    >>> round(s.energy(), 6)
+    -1.287142
+    >>> r = loschmidt.integrate(s, loschmidt.ics.FIGURE_EIGHT_PERIOD)
+    >>> loschmidt.phase_distance(r.system, s) < 1e-7    # back where it started, to the digits given
+    True
     """
     _check_precision(precision)
     x1 = ["0.97000436", "-0.24308753", "0"]
@@ -181,11 +242,10 @@ def lagrange(
     eccentricity: Any = 0,
     precision: str = "dd",
 ):
-    """Lagrange's equilateral solution: three bodies at the corners of an equilateral triangle of
-    side ``side``, in the x-y plane, centre of mass at rest at the origin.
+    """Lagrange's equilateral solution, in the x-y plane with the centre of mass at rest at the origin.
 
     In an equilateral configuration the force on each body points at the centre of mass with
-    magnitude m_i M |r_i| / s^3 (M the total mass, s the side), so the triangle rotates rigidly when
+    magnitude ``m_i M |r_i| / s^3`` (M the total mass, s the side), so the triangle rotates rigidly when
     every velocity is omega z x r_i with the exact condition omega^2 = M / s^3. With ``eccentricity``
     e > 0 the velocities are multiplied by sqrt(1 + e): each side then follows a Kepler ellipse of
     eccentricity e about total mass M starting at periapsis (homographic motion), with period
@@ -196,9 +256,33 @@ def lagrange(
     precision plus 64 guard bits and rounded once by System. Linearly stable only when
     27 (m1 m2 + m2 m3 + m3 m1) < M^2 (Gascheau 1843; Routh 1875): see :func:`lagrange_stable`;
     equal masses are unstable.
+
+    Parameters
+    ----------
+    masses : sequence of 3 numbers, optional
+        Positive masses (default three unit masses); any exact scalar type.
+    side : number, optional
+        Side of the triangle (default 1).
+    eccentricity : number, optional
+        e in [0, 1) of the homographic ellipse (default 0: rigid rotation).
+    precision : {"f64", "f64c", "dd", "qd"}, optional
+        Working precision of the System (default ``"dd"``).
+
+    Returns
+    -------
+    System
+
+    Examples
+    --------
+    >>> import loschmidt
+    >>> s = loschmidt.ics.lagrange(side=2, precision="qd")
+    >>> r = loschmidt.integrate(s, 1)
+    >>> d = r.system.positions[1] - r.system.positions[0]
+    >>> round(float((d @ d) ** 0.5), 12)    # still equilateral, side 2
+    2.0
     """
     precision = _check_precision(precision)
-    if isinstance(masses, (str, bytes)) or len(masses) != 3:
+    if not _three(masses):
         raise ValueError("masses must have 3 entries")
     with mpmath.workprec(working_bits(precision) + GUARD_BITS):
         m = [_positive_mp(v, f"masses[{k}]") for k, v in enumerate(masses)]
@@ -217,13 +301,31 @@ def lagrange(
         pos = [[verts[k][0] - cx, verts[k][1] - cy, mpmath.mpf(0)] for k in range(3)]
         omega = mpmath.sqrt(M / s**3) * mpmath.sqrt(1 + e)
         vel = [[-omega * p[1], omega * p[0], mpmath.mpf(0)] for p in pos]
-    return _system(m, pos, vel, precision)
+    return _system(m, pos, vel, precision, "side")
 
 
 def lagrange_stable(masses: Sequence[Any]) -> bool:
-    """Exact Gascheau-Routh test: the Lagrange triangle is linearly stable iff
-    27 (m1 m2 + m2 m3 + m3 m1) < (m1 + m2 + m3)^2 (Gascheau 1843; Routh 1875)."""
-    if isinstance(masses, (str, bytes)) or len(masses) != 3:
+    """Exact Gascheau-Routh test of the linear stability of the Lagrange triangle.
+
+    Stable iff 27 (m1 m2 + m2 m3 + m3 m1) < (m1 + m2 + m3)^2 (Gascheau 1843; Routh 1875), decided in
+    rational arithmetic.
+
+    Parameters
+    ----------
+    masses : sequence of 3 numbers
+        Positive masses.
+
+    Returns
+    -------
+    bool
+
+    Examples
+    --------
+    >>> from loschmidt.ics import lagrange_stable
+    >>> lagrange_stable([1, 1, 1]), lagrange_stable([1, 0.001, 100])
+    (False, True)
+    """
+    if not _three(masses):
         raise ValueError("masses must have 3 entries")
     m = [_fraction(v, f"masses[{k}]") for k, v in enumerate(masses)]
     for k, v in enumerate(m):
@@ -317,9 +419,36 @@ def binary(
     mean_anomaly: Any = None,
     precision: str = "dd",
 ):
-    """A two-body System in its centre-of-mass frame from the elements of body 2 about body 1
-    (conventions of :mod:`loschmidt.orbits`; periapsis when no anomaly is given). Bound (a > 0,
-    e < 1) or hyperbolic (a < 0, e > 1)."""
+    """A two-body System in its centre-of-mass frame from the elements of body 2 about body 1.
+
+    Conventions of :mod:`loschmidt.orbits`; computed in mpmath at the working precision plus 64 guard
+    bits and rounded once.
+
+    Parameters
+    ----------
+    m1, m2 : number
+        Positive masses.
+    semimajor_axis, eccentricity : number
+        Bound (a > 0, 0 <= e < 1) or hyperbolic (a < 0, e > 1).
+    inclination, longitude_of_node, argument_of_periapsis : number, optional
+        Orientation angles in radians (default 0).
+    true_anomaly, mean_anomaly : number, optional
+        At most one; periapsis when neither is given.
+    precision : {"f64", "f64c", "dd", "qd"}, optional
+        Working precision of the System (default ``"dd"``).
+
+    Returns
+    -------
+    System
+
+    Examples
+    --------
+    >>> from loschmidt import ics, orbits
+    >>> b = ics.binary(1, 0.5, 2, 0.6, true_anomaly=1.0, precision="qd")
+    >>> e = orbits.pair_elements(b)
+    >>> e.semimajor_axis, e.eccentricity, e.true_anomaly
+    (2.0, 0.6, 1.0)
+    """
     precision = _check_precision(precision)
     with mpmath.workprec(working_bits(precision) + GUARD_BITS):
         a1 = _positive_mp(m1, "m1")
@@ -330,7 +459,7 @@ def binary(
         r, v = _state_mp(M, *args, names=("m1 + m2", "semimajor_axis", "eccentricity", "true_anomaly"))
         pos = [[-a2 / M * c for c in r], [a1 / M * c for c in r]]
         vel = [[-a2 / M * c for c in v], [a1 / M * c for c in v]]
-    return _system([a1, a2], pos, vel, precision)
+    return _system([a1, a2], pos, vel, precision, "semimajor_axis")
 
 
 def hierarchical(inner: Mapping[str, Any], outer: Mapping[str, Any], precision: str = "dd"):
@@ -344,6 +473,28 @@ def hierarchical(inner: Mapping[str, Any], outer: Mapping[str, Any], precision: 
     (a < 0, e > 1). Computed in mpmath at the working precision plus 64 guard bits.
     ``orbits.pair_elements(s, 0, 1)`` and ``pair_elements(s, (0, 1), 2)`` give the elements back.
     No stability criterion is applied.
+
+    Parameters
+    ----------
+    inner : mapping
+        ``m1``, ``m2``, ``a``, ``e`` and optionally ``inclination``, ``node``, ``periapsis``,
+        ``true_anomaly`` or ``mean_anomaly``: body 2 about body 1.
+    outer : mapping
+        ``m3``, ``a``, ``e`` and optional angles: body 3 about the inner pair's centre of mass.
+    precision : {"f64", "f64c", "dd", "qd"}, optional
+        Working precision of the System (default ``"dd"``).
+
+    Returns
+    -------
+    System
+
+    Examples
+    --------
+    >>> from loschmidt import ics, orbits
+    >>> s = ics.hierarchical(dict(m1=1, m2=1, a=1, e=0.1), dict(m3=0.5, a=10, e=0.3, inclination=0.5))
+    >>> outer = orbits.pair_elements(s, (0, 1), 2)
+    >>> outer.semimajor_axis, outer.eccentricity, outer.inclination
+    (10.0, 0.3, 0.5)
     """
     precision = _check_precision(precision)
     with mpmath.workprec(working_bits(precision) + GUARD_BITS):
@@ -366,7 +517,7 @@ def hierarchical(inner: Mapping[str, Any], outer: Mapping[str, Any], precision: 
             [V[k] + m1 / m12 * v_in[k] for k in range(3)],
             [m12 / M * v_out[k] for k in range(3)],
         ]
-    return _system([m1, m2, m3], pos, vel, precision)
+    return _system([m1, m2, m3], pos, vel, precision, "inner, outer")
 
 
 # ---------------------------------------------------------------------------------------------
@@ -412,26 +563,56 @@ def plummer(
 
     Float64 throughout: the double values are the initial conditions. Few-body use: the potential is
     an O(n^2) double sum.
+
+    Parameters
+    ----------
+    n : int
+        Number of bodies (>= 2).
+    seed : int
+        Seed of ``numpy.random.default_rng``.
+    precision : {"f64", "f64c", "dd", "qd"}, optional
+        Working precision of the System (default ``"dd"``).
+    mass_cutoff : float, optional
+        Largest cumulative mass fraction drawn, in (0, 1] (default 0.999).
+    virial : bool, optional
+        Rescale to exact virial equilibrium at E = -1/4 (default True).
+
+    Returns
+    -------
+    System
+
+    Examples
+    --------
+    >>> from loschmidt import ics
+    >>> s = ics.plummer(5, seed=1)
+    >>> s.n, round(s.energy(), 12)
+    (5, -0.25)
     """
     n = _count(n, "n", 2)
     rng = np.random.default_rng(_seed(seed))
     precision = _check_precision(precision)
     if isinstance(mass_cutoff, (bool, np.bool_)) or not isinstance(mass_cutoff, (numbers.Real, np.floating)):
         raise TypeError("mass_cutoff must be a real number")
-    if not 0.0 < float(mass_cutoff) <= 1.0:
+    from .precision import _real
+
+    cut = _real(mass_cutoff)
+    if not 0.0 < cut <= 1.0:
         raise ValueError(f"mass_cutoff must be in (0, 1], got {mass_cutoff!r}")
-    cut = float(mass_cutoff)
     if not isinstance(virial, (bool, np.bool_)):
         raise TypeError("virial must be a bool")
 
     # radii: X in (0, 1], rejecting X > cut (and X == 1, whose radius is infinite)
     radii: list = []
     have = 0
+    empty = 0
     while have < n:
+        if empty >= _STALL:  # a cutoff so small that almost no draw is kept: it would never end
+            raise ValueError(f"mass_cutoff: {mass_cutoff!r} keeps no radius in {_STALL * _BATCH} draws; use a larger one")
         X = 1.0 - rng.random(_BATCH)
         X = X[(X <= cut) & (X < 1.0)]
         radii.append(1.0 / np.sqrt(X ** (-2.0 / 3.0) - 1.0))
         have += X.size
+        empty = 0 if X.size else empty + 1
     r = np.concatenate(radii)[:n]
     # speeds: q by rejection from g(q) = q^2 (1 - q^2)^3.5 <= 0.1
     qs: list = []
@@ -469,12 +650,30 @@ _SQRT3_2 = math.sqrt(3.0) / 2.0  # float; only bounds the random draws (the grid
 
 
 def free_fall_region(x: Any, y: Any) -> np.ndarray:
-    """Exact membership of (x, y) in the Agekyan-Anosova region x >= 0, y >= 0,
-    (x + 1/2)^2 + y^2 <= 1 (decided in rational arithmetic where the float test is too close)."""
-    x, y = np.broadcast_arrays(np.asarray(x, dtype=np.float64), np.asarray(y, dtype=np.float64))
+    """Exact membership in the Agekyan-Anosova region x >= 0, y >= 0, (x + 1/2)^2 + y^2 <= 1.
+
+    Decided in rational arithmetic where the float test is too close to call.
+
+    Parameters
+    ----------
+    x, y : float or array-like
+        Coordinates of body 3 (broadcast together).
+
+    Returns
+    -------
+    bool or numpy.ndarray of bool
+
+    Examples
+    --------
+    >>> from loschmidt.ics import free_fall_region
+    >>> free_fall_region(0.2, 0.5), free_fall_region(0.5, 0.8)
+    (True, False)
+    """
+    x, y = np.broadcast_arrays(_coordinates(x, "x"), _coordinates(y, "y"))
     if x.ndim == 0:
         return bool(free_fall_region(x.reshape(1), y.reshape(1))[0])
-    s = (x + 0.5) ** 2 + y**2
+    with np.errstate(over="ignore", invalid="ignore"):  # huge or NaN coordinates: simply outside
+        s = (x + 0.5) ** 2 + y**2
     quadrant = (x >= 0) & (y >= 0)
     inside = quadrant & (s <= 1.0)
     near = quadrant & (np.abs(s - 1.0) <= 1e-12)
@@ -484,6 +683,19 @@ def free_fall_region(x: Any, y: Any) -> np.ndarray:
             fx, fy = Fraction(float(x[k])), Fraction(float(y[k]))
             inside[k] = (fx + Fraction(1, 2)) ** 2 + fy**2 <= 1
     return inside
+
+
+def _coordinates(value: Any, name: str) -> np.ndarray:
+    """Real numbers as float64; errors name ``name``."""
+    if isinstance(value, (str, bytes)):
+        raise TypeError(f"{name} must be a real number or an array of them, got {type(value).__name__}")
+    try:
+        raw = np.asarray(value)
+        if raw.dtype.kind in "bcmMSUV":
+            raise TypeError
+        return raw.astype(np.float64)
+    except (TypeError, ValueError, OverflowError):
+        raise TypeError(f"{name} must be a real number or an array of them") from None
 
 
 def _free_fall_arrays(x: np.ndarray, y: np.ndarray) -> np.ndarray:
@@ -514,6 +726,29 @@ def free_fall_grid(nx: int, ny: int, masses: Sequence[Any] = (1, 1, 1)) -> Ensem
     ``params``: ``ix``, ``iy`` (cell indices, int64), ``x``, ``y`` (body 3). ``meta``: nx, ny.
     Masses are used as the doubles given (the centre of mass is not moved to the origin: it would
     cost a rounding; it is at rest anyway).
+
+    Parameters
+    ----------
+    nx, ny : int
+        Cells across x in [0, 1/2] and y in [0, sqrt(3)/2] (``ny`` about 1.73 ``nx`` gives square
+        cells).
+    masses : sequence of 3 numbers, optional
+        Masses of bodies 1, 2, 3 (default 1, 1, 1), each exactly a double.
+
+    Returns
+    -------
+    Ensemble
+
+    Examples
+    --------
+    >>> from loschmidt import ics
+    >>> ens = ics.free_fall_grid(4, 7)
+    >>> len(ens), ens.meta
+    (21, {'nx': 4, 'ny': 7})
+    >>> ens.params["x"][:3]
+    array([0.0625, 0.1875, 0.3125])
+    >>> bool(ens.system(0).velocities.any())    # released from rest
+    False
     """
     nx = _count(nx, "nx")
     ny = _count(ny, "ny")
@@ -539,9 +774,31 @@ def free_fall_grid(nx: int, ny: int, masses: Sequence[Any] = (1, 1, 1)) -> Ensem
 
 
 def free_fall_random(n: int, seed: int, masses: Sequence[Any] = (1, 1, 1)) -> Ensemble:
-    """``n`` free-fall triples with body 3 uniform over the Agekyan-Anosova region (rejection from
-    the box [0, 1/2) x [0, sqrt(3)/2) in batches of 4096 candidates). Layout as in
-    :func:`free_fall_grid`; ``params``: ``x``, ``y``; ``meta``: seed."""
+    """Free-fall triples with body 3 uniform over the Agekyan-Anosova region.
+
+    Rejection from the box [0, 1/2) x [0, sqrt(3)/2) in batches of 4096 candidates. Layout as in
+    :func:`free_fall_grid`; ``params``: ``x``, ``y``; ``meta``: seed.
+
+    Parameters
+    ----------
+    n : int
+        Number of members; fewer members give a prefix of a larger draw.
+    seed : int
+        Seed of ``numpy.random.default_rng``.
+    masses : sequence of 3 numbers, optional
+        Masses (default 1, 1, 1), each exactly a double.
+
+    Returns
+    -------
+    Ensemble
+
+    Examples
+    --------
+    >>> from loschmidt import ics
+    >>> a, b = ics.free_fall_random(10, seed=3), ics.free_fall_random(4, seed=3)
+    >>> bool((a.params["x"][:4] == b.params["x"]).all())
+    True
+    """
     n = _count(n, "n")
     seed = _seed(seed)
     ms = _masses(masses, "masses", 3)
@@ -661,6 +918,7 @@ def _virial_finish(m, E, pos, u, inv, T_u, Lz):
     return pos, vel
 
 
+@np.errstate(over="ignore", invalid="ignore", divide="ignore")  # extreme scales: inf/NaN candidates are dropped
 def virial_triples(
     n: int,
     seed: int,
@@ -686,6 +944,37 @@ def virial_triples(
     rounded to a double, so 2T + U, P and L - L_target are zero to about 1e-16 relative: the doubles
     are the initial conditions. ``params``: ``angular_momentum`` (the target); ``meta``: seed,
     energy, planar.
+
+    Parameters
+    ----------
+    n : int
+        Number of members.
+    seed : int
+        Seed of ``numpy.random.default_rng``.
+    angular_momentum : float or array-like of n floats, optional
+        Target angular momentum along z (default 0).
+    masses : sequence of 3 numbers, optional
+        Masses (default 1, 1, 1).
+    energy : float, optional
+        Negative total energy (default -M^2 / 4).
+    planar : bool, optional
+        Keep every member in the x-y plane (default False).
+
+    Returns
+    -------
+    Ensemble
+
+    Raises
+    ------
+    ValueError
+        When a target angular momentum cannot be reached at this energy.
+
+    Examples
+    --------
+    >>> from loschmidt import ics
+    >>> ens = ics.virial_triples(5, seed=2, angular_momentum=0.3)
+    >>> ens.energy().round(12), ens.angular_momentum()[:, 2].round(12)
+    (array([-2.25, -2.25, -2.25, -2.25, -2.25]), array([0.3, 0.3, 0.3, 0.3, 0.3]))
     """
     n = _count(n, "n")
     seed = _seed(seed)
@@ -695,10 +984,14 @@ def virial_triples(
     M = float(ms.sum())
     if energy is None:
         E = -M * M / 4.0
+        if not math.isfinite(E):
+            raise ValueError(f"masses: the default energy -M^2/4 overflows double range (M = {M!r}); pass energy")
     else:
         if isinstance(energy, (bool, np.bool_)) or not isinstance(energy, (numbers.Real, np.floating)):
             raise TypeError("energy must be a real number")
-        E = float(energy)
+        from .precision import _real
+
+        E = _real(energy)
         if not (math.isfinite(E) and E < 0):
             raise ValueError(f"energy must be negative and finite (virial equilibrium is bound), got {energy!r}")
     if isinstance(angular_momentum, (bool, np.bool_)):
@@ -728,7 +1021,11 @@ def virial_triples(
                 f"angular_momentum[{filled}] = {targets[filled]!r} is out of reach: no candidate in "
                 f"{_STALL * _BATCH} could carry it at energy {E!r}"
             )
-        ok, pos, vel, inv, T = _virial_candidates(rng, ms, E, planar)
+        try:
+            ok, pos, vel, inv, T = _virial_candidates(rng, ms, E, planar)
+        except np.linalg.LinAlgError:
+            raise ValueError("masses: the inertia tensors of the candidate triangles are singular in double "
+                             "precision (mass ratios too extreme)") from None
         # rotational energy of the target: T_rot = L^2 (I^-1)_zz / 2, feasible when below -E
         # (with a margin that covers the rounding of I^-1 for the triangles kept)
         izz = inv[:, 2, 2]
@@ -753,6 +1050,8 @@ def virial_triples(
         stalled = 0
         out_pos[slots], out_vel[slots] = _virial_finish(ms, E, pos[take], vel[take], inv[take], T[take], targets[slots])
         filled += take.size
+    if not (np.all(np.isfinite(out_pos)) and np.all(np.isfinite(out_vel))):
+        raise ValueError(f"energy, masses: at energy {E!r} the triples leave double range")
     return Ensemble(
         ms,
         out_pos,

@@ -102,7 +102,7 @@ class Trajectory:
             Shape (M, k) for ``"t"``, (M, N, 3, k) for the others.
         """
         table = {"t": self.t_limbs, "positions": self.positions_limbs, "velocities": self.velocities_limbs}
-        if name not in table:
+        if not isinstance(name, str) or name not in table:
             raise ValueError(f"name: expected one of {tuple(table)}, got {name!r}")
         return table[name].copy()
 
@@ -243,23 +243,25 @@ class Result:
 
         if not isinstance(data, dict) or data.get("format") != "loschmidt.result":
             raise ValueError("data: not a 'loschmidt.result' record")
-        kw = {}
-        for name in cls._FIELDS:
-            value = data.get(name)
-            kw[name] = float.fromhex(value) if name in ("t", "wall_time", "energy_error", "tol") else value
-        traj = None
-        if data.get("trajectory"):
-            tr = data["trajectory"]
-            traj = Trajectory(
-                kw["precision"], limbs_from_json(tr["t"], "trajectory.t"),
-                limbs_from_json(tr["positions"], "trajectory.positions"),
-                limbs_from_json(tr["velocities"], "trajectory.velocities"), System.from_dict(tr["start"]),
-            )
-        col = data.get("collision")
-        kw["lifetime"] = None if data.get("lifetime") is None else float.fromhex(data["lifetime"])
-        kw["mergers"] = tuple((float.fromhex(t), int(i), int(j)) for t, i, j in data.get("mergers") or ())
-        return cls(system=System.from_dict(data["system"]), trajectory=traj,
-                   collision=tuple(col) if col else None, **kw)
+        try:
+            kw = {}
+            for name in cls._FIELDS:
+                value = data.get(name)
+                kw[name] = float.fromhex(value) if name in ("t", "wall_time", "energy_error", "tol") else value
+            traj = None
+            if data.get("trajectory"):
+                tr = data["trajectory"]
+                traj = Trajectory(
+                    kw["precision"], limbs_from_json(tr["t"], "trajectory.t"),
+                    limbs_from_json(tr["positions"], "trajectory.positions"),
+                    limbs_from_json(tr["velocities"], "trajectory.velocities"), System.from_dict(tr["start"]),
+                )
+            col = data.get("collision")
+            kw["lifetime"] = None if data.get("lifetime") is None else float.fromhex(data["lifetime"])
+            kw["mergers"] = tuple((float.fromhex(t), int(i), int(j)) for t, i, j in data.get("mergers") or ())
+            return cls(system=_final_state(data), trajectory=traj, collision=tuple(col) if col else None, **kw)
+        except (KeyError, TypeError, ValueError, AttributeError, IndexError, OverflowError) as exc:
+            raise ValueError(f"data: a malformed 'loschmidt.result' record ({type(exc).__name__}: {exc})") from None
 
     def save(self, path: Any) -> None:
         """Write this result to a JSON file, exactly (atomically).
@@ -305,6 +307,29 @@ class Result:
         return cls.from_dict(read_json(path, "loschmidt.result"))
 
 
+def _final_state(data: dict) -> System:
+    """The final System of a result record; that of a failed run may hold non-finite values."""
+    from .serialize import limbs_from_json
+
+    rec = data.get("system")
+    try:
+        return System.from_dict(rec)
+    except ValueError:
+        if data.get("status") in SUCCESS_STATUSES or not isinstance(rec, dict):
+            raise
+    prec = _p.check_precision(rec.get("precision"), "precision")
+    m = limbs_from_json(rec.get("masses"), "masses")
+    x = limbs_from_json(rec.get("positions"), "positions", finite=False)
+    v = limbs_from_json(rec.get("velocities"), "velocities", finite=False)
+    t = limbs_from_json(rec.get("time"), "time", finite=False)
+    k = _p.limb_count(prec)
+    n = m.shape[0] if m.ndim == 2 else -1
+    if m.shape != (n, k) or x.shape != (n, 3, k) or v.shape != (n, 3, k) or t.shape != (k,):
+        raise ValueError("system: limb arrays of inconsistent shapes")
+    radii = rec.get("radii")
+    return System._unchecked(m, x, v, prec, None if radii is None else limbs_from_json(radii, "radii"), t)
+
+
 def _check_number(value: Any, name: str) -> None:
     if isinstance(value, (bool, np.bool_)):
         raise TypeError(f"{name}: expected a number, got bool")
@@ -337,7 +362,7 @@ def _positive_or_none(value: Any, name: str, integer: bool = False, maximum: int
         return int(value)
     if not isinstance(value, numbers.Real):
         raise TypeError(f"{name}: expected a number, got {type(value).__name__}")
-    v = float(value)
+    v = _p._real(value)
     if not math.isfinite(v) or v <= 0:
         raise ValueError(f"{name}: must be a positive finite number, got {value}")
     return v
@@ -369,7 +394,7 @@ def check_tolerance(tol: Any, prec: str, name: str = "tol") -> float:
     _check_number(tol, name)
     if not isinstance(tol, numbers.Real):
         raise TypeError(f"{name}: expected a number, got {type(tol).__name__}")
-    v = float(tol)
+    v = _p._real(tol)
     if not (0 < v < 1) or not math.isfinite(v):
         raise ValueError(f"{name}: must lie in (0, 1), got {tol}")
     floor = 50 * _p.epsilon(prec)  # below this the error estimate is round-off noise
@@ -393,7 +418,9 @@ def _output_times(times: Any, t: np.ndarray, prec: str) -> np.ndarray:
     k = _p.limb_count(prec)
     if times is None:
         return np.zeros((0, k))
-    if isinstance(times, (str, bytes)) or np.ndim(np.array(times, dtype=object)) != 1:
+    from .system import _object_ndim
+
+    if isinstance(times, (str, bytes)) or _object_ndim(times) != 1:
         raise ValueError("times: expected a one-dimensional sequence of output times")
     limbs = _p.to_limbs(times, prec, name="times")
     if limbs.shape[0] == 0:
@@ -448,7 +475,7 @@ def _check_pn(pn: Any, c: Any, merger_factor: Any, method: str, prec: str) -> tu
         _check_number(merger_factor, "merger_factor")
         if not isinstance(merger_factor, numbers.Real):
             raise TypeError(f"merger_factor: expected a number, got {type(merger_factor).__name__}")
-        factor = float(merger_factor)
+        factor = _p._real(merger_factor)
         if not math.isfinite(factor) or factor < 0:
             raise ValueError(f"merger_factor: must be a finite number >= 0, got {merger_factor}")
     return mask, [float(x) for x in c_limbs], factor
@@ -814,14 +841,33 @@ def phase_distances(a: System, b: System) -> dict:
     a, b, prec = _common(a, b)
     dx = _p.sub(a.limbs("positions"), b.limbs("positions"), prec)
     dv = _p.sub(a.limbs("velocities"), b.limbs("velocities"), prec)
-    sx = _sum_of_squares(dx, prec)
-    sv = _sum_of_squares(dv, prec)
-    total = _p.add(sx, sv, prec)
     return {
-        "delta": float(_p.to_float(_p.sqrt(total, prec))),
-        "delta_position": float(_p.to_float(_p.sqrt(sx, prec))),
-        "delta_velocity": float(_p.to_float(_p.sqrt(sv, prec))),
+        "delta": _norm([dx, dv], prec),
+        "delta_position": _norm([dx], prec),
+        "delta_velocity": _norm([dv], prec),
     }
+
+
+def _norm(parts: list, prec: str) -> float:
+    """sqrt of the sum of squares of limb arrays, in the working precision. The values are scaled by a
+    power of two first (exact), so squares of 1e200 do not overflow nor those of 1e-200 underflow;
+    otherwise the result has the same bits as without the scaling."""
+    flat = [np.asarray(d).reshape(-1, d.shape[-1]) for d in parts]
+    lead = np.concatenate([f[:, 0] for f in flat])
+    big = float(np.max(np.abs(lead))) if lead.size else 0.0
+    if big == 0.0 or not all(np.all(np.isfinite(f)) for f in flat):
+        e = 0  # zero, or the non-finite values of a failed run: nothing to scale
+    else:
+        e = math.frexp(big)[1]
+    acc = None
+    for f in flat:
+        sq = _sum_of_squares(np.ldexp(f, -e), prec)
+        acc = sq if acc is None else _p.add(acc, sq, prec)
+    root = float(_p.to_float(_p.sqrt(acc, prec)))
+    try:
+        return math.ldexp(root, e)
+    except OverflowError:  # the distance itself exceeds the double range
+        return math.inf
 
 
 def phase_distance(a: System, b: System) -> float:

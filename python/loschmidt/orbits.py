@@ -18,7 +18,7 @@ Conventions (G = 1, N-body units):
   periapsis), hyperbolic anomaly H and mean anomaly e sinh H - H signed, period infinite. A parabolic
   state (zero energy, only when exact) has an infinite semimajor axis and NaN mean anomaly.
 - ``energy`` is the pair's energy in its own centre-of-mass frame, mu (v^2/2 - (m1 + m2)/r), with
-  mu = m1 m2 / (m1 + m2); ``angular_momentum`` is its magnitude mu |r x v|.
+  mu = m1 m2 / (m1 + m2); ``angular_momentum`` is its magnitude ``mu |r x v|``.
 
 Precision: every computation runs in mpmath at the bits of the requested precision (53 for f64 and
 f64c, 106 for dd, 212 for qd) plus 64 guard bits, and each result is rounded once, to a double for the
@@ -60,7 +60,18 @@ def _check_precision(precision: Any) -> str:
 
 
 def working_bits(precision: str) -> int:
-    """Significand bits of ``precision`` (53, 53, 106, 212), without guard bits."""
+    """Significand bits of a working precision, without guard bits.
+
+    Parameters
+    ----------
+    precision : {"f64", "f64c", "dd", "qd"}
+        A working precision.
+
+    Returns
+    -------
+    int
+        53, 53, 106 or 212.
+    """
     return _BITS[_check_precision(precision)]
 
 
@@ -85,7 +96,7 @@ def _mpf(value: Any, name: str, *, finite: bool = True) -> mpmath.mpf:
     elif isinstance(value, str):
         try:
             x = mpmath.mpf(value.strip())
-        except ValueError:
+        except (ValueError, ZeroDivisionError):  # mpmath reads "p/q" too, and "1/0" divides by zero
             raise ValueError(f"{name} is not a decimal number: {value!r}") from None
     elif isinstance(value, numbers.Rational):
         x = mpmath.mp.make_mpf(mpmath.libmp.from_rational(int(value.numerator), int(value.denominator), prec, "n"))
@@ -97,6 +108,9 @@ def _mpf(value: Any, name: str, *, finite: bool = True) -> mpmath.mpf:
         )
     if finite and not mpmath.isfinite(x):
         raise ValueError(f"{name} must be finite, got {value!r}")
+    if x and mpmath.isfinite(x) and abs(int(mpmath.mag(x))) > 16600:  # |log10 x| > 5000
+        # far beyond double range; sin and cos of it would need millions of digits of pi
+        raise ValueError(f"{name} lies far outside the range of double precision, got {mpmath.nstr(x, 5)}")
     return x
 
 
@@ -120,9 +134,9 @@ def _limbs(value: mpmath.mpf, precision: str) -> np.ndarray:
     from loschmidt.precision import limb_count, to_limbs
 
     k = limb_count(precision)
-    if not mpmath.isfinite(value):
+    if not mpmath.isfinite(value) or abs(value) > mpmath.mpf(np.finfo(np.float64).max):
         out = np.zeros(k)
-        out[0] = float(value)
+        out[0] = float(value)  # NaN, or +-inf as the float attribute gives for a value beyond double range
         return out
     return np.asarray(to_limbs(value, precision), dtype=np.float64).reshape(k)
 
@@ -281,7 +295,7 @@ _FIELD_DOCS = {
     "mean_anomaly": "Mean anomaly: E - e sin E in [0, 2 pi) bound, e sinh H - H unbound.",
     "period": "Orbital period 2 pi sqrt(a^3 / (m1 + m2)); infinite when unbound.",
     "energy": "Energy of the pair in its centre-of-mass frame, mu (v^2/2 - (m1 + m2)/r).",
-    "angular_momentum": "Magnitude of the pair's angular momentum, mu |r x v|.",
+    "angular_momentum": "Magnitude of the pair's angular momentum, ``mu |r x v|``.",
     "mass": "Total mass m1 + m2 (the gravitational parameter, G = 1).",
     "reduced_mass": "Reduced mass m1 m2 / (m1 + m2).",
 }
@@ -368,7 +382,15 @@ class OrbitalElements:
     ``eccentric_anomaly``, ``mean_anomaly``, ``period``, ``energy``, ``angular_momentum``, ``mass``,
     ``reduced_mass``; ``bound`` (bool) and ``precision``.
     Full precision: ``limbs(name)`` -> float64 limbs (k,), ``to_mpmath()`` -> dict of mpmath values
-    (carrying the guard bits), ``as_dict()`` -> dict of floats.
+    (carrying the guard bits), ``as_dict()`` -> dict of floats. Made by :func:`orbital_elements`
+    and :func:`pair_elements`, not by hand.
+
+    Parameters
+    ----------
+    values : dict
+        Every name of ``FIELDS`` -> its mpmath value.
+    precision : {"f64", "f64c", "dd", "qd"}
+        The working precision the values belong to.
     """
 
     __slots__ = ("_values", "_precision")
@@ -383,6 +405,7 @@ class OrbitalElements:
 
     @property
     def precision(self) -> str:
+        """The working precision of the elements."""
         return self._precision
 
     @property
@@ -391,15 +414,40 @@ class OrbitalElements:
         return bool(self._values["energy"] < 0)
 
     def limbs(self, name: str) -> np.ndarray:
-        """Element ``name`` as float64 limbs (k,) of the working precision."""
+        """One element in full precision.
+
+        Parameters
+        ----------
+        name : str
+            One of ``FIELDS`` (``"semimajor_axis"``, ``"eccentricity"`` ...).
+
+        Returns
+        -------
+        numpy.ndarray, shape (k,)
+            float64 limbs of the working precision, rounded once from the mpmath value.
+        """
         if name not in _FIELDS:
             raise ValueError(f"name must be one of {_FIELDS}, got {name!r}")
         return _limbs(self._values[name], self._precision)
 
     def to_mpmath(self) -> dict:
+        """Every element as its mpmath value (carrying the guard bits).
+
+        Returns
+        -------
+        dict
+            Name -> ``mpmath.mpf``.
+        """
         return dict(self._values)
 
     def as_dict(self) -> dict:
+        """Every element rounded to a float.
+
+        Returns
+        -------
+        dict
+            Name -> float.
+        """
         return {f: float(self._values[f]) for f in _FIELDS}
 
     def __repr__(self) -> str:
@@ -421,8 +469,30 @@ del _name
 
 
 def orbital_elements(m1: Any, m2: Any, position: Any, velocity: Any, precision: str = "dd") -> OrbitalElements:
-    """Elements of body 2 about body 1 from the relative state ``position = r2 - r1``,
-    ``velocity = v2 - v1`` (2 or 3 components each; any exact scalar type), G = 1."""
+    """Elements of body 2 about body 1 from their relative state (G = 1).
+
+    Parameters
+    ----------
+    m1, m2 : number
+        Positive masses; the gravitational parameter is m1 + m2.
+    position, velocity : sequence of 2 or 3 numbers
+        ``r2 - r1`` and ``v2 - v1``; any exact scalar type.
+    precision : {"f64", "f64c", "dd", "qd"}, optional
+        Working precision of the result (default ``"dd"``).
+
+    Returns
+    -------
+    OrbitalElements
+
+    Examples
+    --------
+    >>> from loschmidt import orbits
+    >>> e = orbits.orbital_elements(0.5, 0.5, [1, 0], [0, 1])
+    >>> e.semimajor_axis, e.eccentricity, e.bound
+    (1.0, 0.0, True)
+    >>> round(e.period, 12)     # 2 pi for a = 1 about unit mass
+    6.28318530718
+    """
     bits = working_bits(precision)
     with mpmath.workprec(bits + GUARD_BITS):
         a = _mpf(m1, "m1")
@@ -446,9 +516,12 @@ def _group(indices: Any, n: int, name: str) -> list:
         idx = [int(indices)]
     else:
         try:
-            idx = [int(i) for i in indices]
+            items = list(indices)
         except TypeError:
             raise TypeError(f"{name} must be a body index or a sequence of them") from None
+        if not all(isinstance(i, (int, np.integer)) and not isinstance(i, (bool, np.bool_)) for i in items):
+            raise TypeError(f"{name} must be a body index or a sequence of them (integers)")
+        idx = [int(i) for i in items]
     if not idx:
         raise ValueError(f"{name} must name at least one body")
     for i in idx:
@@ -472,8 +545,26 @@ def _system_mp(system: Any) -> tuple:
 def pair_elements(system: Any, i: Any = 0, j: Any = 1) -> OrbitalElements:
     """Elements of body (or group) ``j`` about body (or group) ``i`` of a System, in its precision.
 
-    ``i`` and ``j`` are body indices or sequences of indices; a group counts as one body of its total
-    mass at its centre of mass (``pair_elements(s, (0, 1), 2)`` is the outer orbit of a triple).
+    Parameters
+    ----------
+    system : System
+        The state.
+    i, j : int or sequence of int, optional
+        Body indices or groups of them (default bodies 0 and 1); a group counts as one body of its
+        total mass at its centre of mass (``pair_elements(s, (0, 1), 2)`` is the outer orbit of a
+        triple).
+
+    Returns
+    -------
+    OrbitalElements
+
+    Examples
+    --------
+    >>> from loschmidt import ics, orbits
+    >>> b = ics.binary(1, 1, 3, 0.25, mean_anomaly=2.0)
+    >>> e = orbits.pair_elements(b, 0, 1)
+    >>> round(e.semimajor_axis, 12), round(e.eccentricity, 12), round(e.mean_anomaly, 12)
+    (3.0, 0.25, 2.0)
     """
     precision = _check_precision(system.precision)
     bits = working_bits(precision)
@@ -529,10 +620,31 @@ def relative_state(
 ) -> tuple[np.ndarray, np.ndarray]:
     """Relative position and velocity of body 2 about body 1 from elements (G = 1).
 
-    Give at most one of ``true_anomaly`` and ``mean_anomaly`` (periapsis when neither). Returns
-    ``(position, velocity)``, each float64 limbs of shape (3, k) in ``precision``.
-    Bound: a > 0, 0 <= e < 1; unbound: a < 0, e > 1 (mean anomaly through the hyperbolic Kepler
-    equation e sinh H - H = M).
+    Parameters
+    ----------
+    m1, m2 : number
+        Positive masses.
+    semimajor_axis, eccentricity : number
+        Bound: a > 0, 0 <= e < 1; unbound: a < 0, e > 1 (a mean anomaly then goes through the
+        hyperbolic Kepler equation e sinh H - H = M).
+    inclination, longitude_of_node, argument_of_periapsis : number, optional
+        Orientation in radians (default 0).
+    true_anomaly, mean_anomaly : number, optional
+        At most one; periapsis when neither is given.
+    precision : {"f64", "f64c", "dd", "qd"}, optional
+        Working precision of the result (default ``"dd"``).
+
+    Returns
+    -------
+    position, velocity : numpy.ndarray, shape (3, k)
+        float64 limbs of ``r2 - r1`` and ``v2 - v1``.
+
+    Examples
+    --------
+    >>> from loschmidt import orbits, precision
+    >>> r, v = orbits.relative_state(0.5, 0.5, 1, 0)
+    >>> precision.to_float(r), precision.to_float(v)
+    (array([1., 0., 0.]), array([0., 1., 0.]))
     """
     bits = working_bits(precision)
     with mpmath.workprec(bits + GUARD_BITS):
@@ -547,13 +659,35 @@ def relative_state(
         pos, vel = _state_mp(a1 + a2, *args)
         P = np.stack([_limbs(c, precision) for c in pos])
         V = np.stack([_limbs(c, precision) for c in vel])
+    if not (np.all(np.isfinite(P)) and np.all(np.isfinite(V))):
+        raise ValueError("semimajor_axis: the relative state lies beyond the double range")
     return P, V
 
 
 def eccentric_anomaly(mean_anomaly: Any, eccentricity: Any, precision: str = "dd") -> np.ndarray:
     """Solve Kepler's equation: E - e sin E = M (e < 1; E in [0, 2 pi)) or e sinh H - H = M (e > 1).
 
-    Returns float64 limbs (k,) of ``precision``.
+    Parameters
+    ----------
+    mean_anomaly : number
+        M in radians.
+    eccentricity : number
+        e >= 0, not 1.
+    precision : {"f64", "f64c", "dd", "qd"}, optional
+        Working precision of the result (default ``"dd"``).
+
+    Returns
+    -------
+    numpy.ndarray, shape (k,)
+        float64 limbs of E (or H).
+
+    Examples
+    --------
+    >>> import math
+    >>> from loschmidt import orbits, precision
+    >>> E = float(precision.to_float(orbits.eccentric_anomaly(1.0, 0.5, "f64")))
+    >>> round(E - 0.5 * math.sin(E), 15)
+    1.0
     """
     bits = working_bits(precision)
     with mpmath.workprec(bits + GUARD_BITS):

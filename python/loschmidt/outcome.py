@@ -247,9 +247,9 @@ class Outcome:
             raise ValueError(f"name: expected one of {_EXACT_NAMES}, got {name!r}")
         value = self._exact[name]
         k = _p.limb_count(self.precision)
-        if not mpmath.isfinite(value):
+        if not mpmath.isfinite(value) or abs(value) > mpmath.mpf(np.finfo(np.float64).max):
             out = np.zeros(k)
-            out[0] = float(value)
+            out[0] = float(value)  # NaN, or +-inf as the float field gives for a value beyond double range
             return out
         return np.asarray(_p.to_limbs(value, self.precision), dtype=np.float64).reshape(k)
 
@@ -432,7 +432,7 @@ def _escape_test(p, parts, masses, pos, vel, k):
 def _check_factor(value: Any) -> float:
     if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
         raise TypeError(f"distance_factor: expected a real number, got {type(value).__name__}")
-    v = float(value)
+    v = _p._real(value)
     if not math.isfinite(v) or v < 0:
         raise ValueError(f"distance_factor: must be a finite number >= 0, got {value!r}")
     return v
@@ -441,17 +441,9 @@ def _check_factor(value: Any) -> float:
 def _check_radii(radii: Any, system: System) -> np.ndarray | None:
     if radii is None:
         return system.radii
-    if isinstance(radii, (str, bytes)):
-        raise TypeError("radii: expected a sequence of numbers")
-    try:
-        r = np.asarray(radii, dtype=float)
-    except (TypeError, ValueError):
-        raise TypeError("radii: expected a sequence of numbers") from None
-    if r.shape != (system.n,):
-        raise ValueError(f"radii: expected {system.n} values, got shape {r.shape}")
-    if not np.all(np.isfinite(r)) or np.any(r < 0):
-        raise ValueError("radii: must be finite and non-negative")
-    return r
+    from .system import _radii_array
+
+    return _radii_array(radii, system.n)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -662,6 +654,10 @@ def _f(el: dict | None, name: str) -> float:
 # ---------------------------------------------------------------------------------------------
 # integrate in chunks until an escape (stand-in for an engine stop condition)
 # ---------------------------------------------------------------------------------------------
+#: Most chunks ``integrate_until_escape`` accepts (t_max / interval): beyond it, hours of work.
+MAX_CHUNKS = 10**6
+
+
 def _positive_time(value: Any, name: str) -> Fraction:
     if isinstance(value, (bool, np.bool_)):
         raise TypeError(f"{name}: expected a number, got bool")
@@ -728,6 +724,9 @@ def integrate_until_escape(
         raise TypeError(f"system: expected a loschmidt.System, got {type(system).__name__}")
     total = _positive_time(t_max, "t_max")
     step = _positive_time(interval, "interval")
+    if total / step > MAX_CHUNKS:  # each chunk costs an integration and an mpmath classification
+        raise ValueError(f"interval: t_max / interval = {_p._magnitude(total / step)} chunks, more than "
+                         f"{MAX_CHUNKS}; use a longer interval")
     _check_factor(distance_factor)
     _check_radii(radii, system)
     if "times" in integrate_options:

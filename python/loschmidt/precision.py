@@ -16,6 +16,7 @@ is returned. A remainder below the smallest subnormal is lost (values near 1e-30
 from __future__ import annotations
 
 import decimal
+import math
 import numbers
 from fractions import Fraction
 from typing import Any
@@ -43,6 +44,8 @@ __all__ = [
     "absolute",
 ]
 
+#: Names of the working precisions, narrowest first (double, compensated double, double-double,
+#: quad-double).
 PRECISIONS = ("f64", "f64c", "dd", "qd")
 
 _LIMBS = {"f64": 1, "f64c": 1, "dd": 2, "qd": 4}
@@ -56,7 +59,27 @@ _KERNEL = {"f64": "f64", "f64c": "f64", "dd": "dd", "qd": "qd"}
 
 
 def check_precision(precision: Any, name: str = "precision") -> str:
-    """Return ``precision`` if it names a working precision, else raise ``ValueError``."""
+    """Validate the name of a working precision.
+
+    Parameters
+    ----------
+    precision : str
+        One of ``PRECISIONS``.
+    name : str, optional
+        The argument name used in error messages.
+
+    Returns
+    -------
+    str
+        ``precision`` itself.
+
+    Raises
+    ------
+    TypeError
+        If ``precision`` is not a string.
+    ValueError
+        If it names no working precision.
+    """
     if not isinstance(precision, str):
         raise TypeError(f"{name}: expected one of {PRECISIONS}, got {type(precision).__name__}")
     if precision not in _LIMBS:
@@ -65,17 +88,62 @@ def check_precision(precision: Any, name: str = "precision") -> str:
 
 
 def limb_count(precision: str) -> int:
-    """Number of float64 limbs a value of ``precision`` occupies (1, 1, 2, 4)."""
+    """Number of float64 limbs a value of ``precision`` occupies.
+
+    Parameters
+    ----------
+    precision : {"f64", "f64c", "dd", "qd"}
+        A working precision.
+
+    Returns
+    -------
+    int
+        1, 1, 2 or 4.
+
+    Examples
+    --------
+    >>> from loschmidt import precision
+    >>> [precision.limb_count(p) for p in precision.PRECISIONS]
+    [1, 1, 2, 4]
+    """
     return _LIMBS[check_precision(precision)]
 
 
 def epsilon(precision: str) -> float:
-    """Unit roundoff of ``precision`` (2**-53, 2**-53, 2**-106, 2**-212)."""
+    """Unit roundoff of a working precision.
+
+    Parameters
+    ----------
+    precision : {"f64", "f64c", "dd", "qd"}
+        A working precision.
+
+    Returns
+    -------
+    float
+        2**-53, 2**-53, 2**-106 or 2**-212.
+
+    Examples
+    --------
+    >>> from loschmidt import precision
+    >>> precision.epsilon("dd") == 2.0**-106
+    True
+    """
     return _EPSILON[check_precision(precision)]
 
 
 def digits(precision: str) -> int:
-    """Decimal digits carried by ``precision`` (15, 15, 31, 62)."""
+    """Decimal digits carried by a working precision.
+
+    Parameters
+    ----------
+    precision : {"f64", "f64c", "dd", "qd"}
+        A working precision.
+
+    Returns
+    -------
+    int
+        15, 15, 31 or 62.
+    """
     return _DIGITS[check_precision(precision)]
 
 
@@ -83,16 +151,65 @@ def digits(precision: str) -> int:
 # Exact rationals from user values
 
 
-def _mpf_to_fraction(x: Any) -> Fraction:
-    sign, man, exp, _bc = x._mpf_
+#: Largest decimal exponent |e| of a number converted exactly (doubles span about 1e-324 to 1e308).
+#: Beyond it the exact rational would be an integer of millions of digits (``"1e999999999"`` took
+#: minutes and gigabytes), so such numbers are refused before they are built.
+_EXPONENT_LIMIT = 5000
+
+
+def _real(value: Any) -> float:
+    """``float(value)``, an integer beyond the double range giving +-inf (then refused as non-finite)."""
+    try:
+        return float(value)
+    except OverflowError:
+        return math.inf if value > 0 else -math.inf
+
+
+def _check_exponent(exponent: int, x: Any, name: str) -> None:
+    if abs(exponent) > _EXPONENT_LIMIT:
+        text = repr(x) if len(repr(x)) <= 40 else repr(x)[:37] + "..."
+        raise ValueError(f"{name}: {text} lies far outside the range of double precision "
+                         f"(decimal exponent {exponent})")
+
+
+def _magnitude(value: Fraction) -> str:
+    """``"1e+400"``-style order of magnitude of a rational, without converting it to a string."""
+    bits = abs(value.numerator).bit_length() - value.denominator.bit_length()
+    return f"about 1e{int(bits * 0.30103):+d}"
+
+
+def _mpf_to_fraction(x: Any, name: str = "value") -> Fraction:
+    sign, man, exp, bc = x._mpf_
     if not man and exp:  # mpmath encodes inf and nan as zero mantissa with a nonzero exponent code
         raise ValueError("non-finite mpmath value")
+    if not man:
+        return Fraction(0)
+    _check_exponent(int((int(exp) + int(bc)) * 0.30103), x, name)
     value = Fraction(int(man)) * (Fraction(2) ** int(exp))
     return -value if sign else value
 
 
 def exact_fraction(x: Any, name: str = "value") -> Fraction:
-    """The exact rational value of one number; raises ``ValueError``/``TypeError`` naming ``name``."""
+    """The exact rational value of one number.
+
+    Parameters
+    ----------
+    x : int, float, str, Decimal, Fraction or mpmath.mpf
+        A finite number; a string is a decimal or ``"p/q"``.
+    name : str, optional
+        The argument name used in error messages.
+
+    Returns
+    -------
+    Fraction
+
+    Raises
+    ------
+    ValueError
+        For non-finite values and strings that are no number.
+    TypeError
+        For booleans and other types.
+    """
     if isinstance(x, Fraction):
         return x
     if isinstance(x, (bool, np.bool_)):
@@ -100,24 +217,40 @@ def exact_fraction(x: Any, name: str = "value") -> Fraction:
     if isinstance(x, numbers.Integral):
         return Fraction(int(x))
     if isinstance(x, (float, np.floating)):
-        xf = float(x)
-        if not np.isfinite(xf):
-            raise ValueError(f"{name}: must be finite, got {xf}")
-        return Fraction(xf)
+        if not np.isfinite(x):
+            raise ValueError(f"{name}: must be finite, got {x}")
+        if isinstance(x, np.floating) and x.dtype.itemsize > 8:  # long double: exact, not via a double
+            return Fraction(*x.as_integer_ratio())
+        return Fraction(float(x))
     if isinstance(x, decimal.Decimal):
         if not x.is_finite():
             raise ValueError(f"{name}: must be finite, got {x}")
+        if not x:
+            return Fraction(0)
+        _check_exponent(x.adjusted(), x, name)
         return Fraction(x)
     if isinstance(x, str):
         text = x.strip().replace("_", "")
+        if "/" not in text:
+            try:
+                d = decimal.Decimal(text)
+            except (decimal.InvalidOperation, ValueError):
+                d = None  # Fraction below reports it
+            if d is not None and d.is_finite():
+                if not d:
+                    return Fraction(0)
+                _check_exponent(d.adjusted(), x, name)
         try:
             return Fraction(text)
         except (ValueError, ZeroDivisionError):
-            raise ValueError(f"{name}: {x!r} is not a finite decimal or rational number") from None
+            text = repr(x) if len(repr(x)) <= 40 else repr(x)[:37] + "..."
+            raise ValueError(f"{name}: {text} is not a finite decimal or rational number") from None
     if type(x).__module__.startswith("mpmath") and hasattr(x, "_mpf_"):
         try:
-            return _mpf_to_fraction(x)
-        except ValueError:
+            return _mpf_to_fraction(x, name)
+        except ValueError as exc:
+            if str(exc).startswith(name + ":"):
+                raise
             raise ValueError(f"{name}: must be finite, got {x}") from None
     if isinstance(x, numbers.Rational):
         return Fraction(x.numerator, x.denominator)
@@ -131,7 +264,7 @@ def _fraction_limbs(value: Fraction, k: int, name: str) -> list[float]:
         try:
             h = float(rest)  # float(Fraction) is correctly rounded
         except OverflowError:
-            raise ValueError(f"{name}: {float(value) if abs(value) < 10**400 else value} overflows double range") from None
+            raise ValueError(f"{name}: a value of {_magnitude(value)} overflows double range") from None
         out.append(h)
         rest -= Fraction(h)
         if rest == 0:
@@ -149,11 +282,37 @@ def _as_object_array(values: Any, name: str) -> np.ndarray:
 
 
 def to_limbs(values: Any, precision: str, *, name: str = "values") -> np.ndarray:
-    """Convert numbers to a float64 limb array of shape ``values.shape + (k,)``.
+    """Convert numbers exactly to a float64 limb array (see the module docstring for the rule).
 
-    Accepts int, float, str (decimal or ``"p/q"``), ``decimal.Decimal``, ``fractions.Fraction``,
-    ``mpmath.mpf`` and (nested) sequences or numpy arrays of these. Non-finite values raise
-    ``ValueError`` naming ``name``; other types raise ``TypeError``.
+    Parameters
+    ----------
+    values : number or array-like of numbers
+        int, float, str (decimal or ``"p/q"``), ``decimal.Decimal``, ``fractions.Fraction``,
+        ``mpmath.mpf``, or (nested) sequences or numpy arrays of these.
+    precision : {"f64", "f64c", "dd", "qd"}
+        The working precision: k = 1, 1, 2 or 4 limbs per value.
+    name : str, optional
+        The argument name used in error messages.
+
+    Returns
+    -------
+    numpy.ndarray
+        float64 array of shape ``shape(values) + (k,)``, largest limb first.
+
+    Raises
+    ------
+    ValueError
+        For non-finite values, ragged arrays, or values beyond the double range.
+    TypeError
+        For booleans and other types.
+
+    Examples
+    --------
+    >>> from loschmidt import precision
+    >>> precision.to_limbs("0.1", "dd")
+    array([ 1.00000000e-01, -5.55111512e-18])
+    >>> precision.to_limbs([1, 2], "f64").shape
+    (2, 1)
     """
     k = limb_count(precision)
     if isinstance(values, np.ndarray) and values.dtype.kind in "fiu":
@@ -186,15 +345,42 @@ def to_limbs(values: Any, precision: str, *, name: str = "values") -> np.ndarray
     return out
 
 
+#: Most significant digits ``to_string`` writes (the exact expansion of any limb sum has fewer than 1200).
+_MAX_DIGITS = 100_000
+
+
 def _check_limbs(limbs: Any, name: str = "limbs") -> np.ndarray:
-    a = np.asarray(limbs, dtype=np.float64)
+    try:
+        raw = np.asarray(limbs)
+        if raw.dtype.kind in "bcmMSUV":  # booleans, complex numbers (their imaginary part), dates, text
+            raise TypeError
+        a = np.asarray(raw, dtype=np.float64)
+    except (TypeError, ValueError, OverflowError):
+        raise TypeError(f"{name}: expected a float64 limb array") from None
     if a.ndim < 1 or a.shape[-1] not in (1, 2, 4):
         raise ValueError(f"{name}: expected a limb array of shape (..., k) with k in (1, 2, 4)")
     return a
 
 
 def to_fraction(limbs: Any) -> Any:
-    """Exact rational value(s) of a limb array: a ``Fraction`` for shape ``(k,)``, else an object array."""
+    """Exact rational value(s) of a limb array.
+
+    Parameters
+    ----------
+    limbs : array-like, shape (..., k)
+        Finite float64 limbs, k in (1, 2, 4).
+
+    Returns
+    -------
+    Fraction or numpy.ndarray
+        A ``Fraction`` for shape ``(k,)``, else an object array of shape ``limbs.shape[:-1]``.
+
+    Examples
+    --------
+    >>> from loschmidt import precision
+    >>> precision.to_fraction([0.5, 2.0**-60])
+    Fraction(576460752303423489, 1152921504606846976)
+    """
     a = _check_limbs(limbs)
     if not np.all(np.isfinite(a)):
         raise ValueError("limbs: must be finite")
@@ -222,7 +408,19 @@ def _fraction_to_mpf(fr: Fraction) -> Any:
 
 
 def to_mpmath(limbs: Any) -> Any:
-    """Exact ``mpmath.mpf`` value(s) of a limb array (the mantissa holds every bit of every limb)."""
+    """Exact ``mpmath.mpf`` value(s) of a limb array.
+
+    Parameters
+    ----------
+    limbs : array-like, shape (..., k)
+        Finite float64 limbs.
+
+    Returns
+    -------
+    mpmath.mpf or numpy.ndarray
+        One ``mpf`` for shape ``(k,)``, else an object array; each mantissa holds every bit of
+        every limb, whatever mpmath's working precision.
+    """
     fr = to_fraction(limbs)
     if isinstance(fr, Fraction):
         return _fraction_to_mpf(fr)
@@ -247,14 +445,35 @@ def _fraction_to_decimal_string(fr: Fraction, ndigits: int | None) -> str:
 
 
 def to_string(limbs: Any, digits: int | None = None, *, exact: bool = False) -> Any:
-    """Decimal string(s) of a limb array, correctly rounded to ``digits`` significant digits.
+    """Decimal string(s) of a limb array, correctly rounded.
 
-    ``digits=None`` uses enough digits for the string to convert back to the same limbs (17, 34 or 66
-    by limb count); ``exact=True`` gives the full, exact decimal expansion.
+    Parameters
+    ----------
+    limbs : array-like, shape (..., k)
+        Finite float64 limbs.
+    digits : int, optional
+        Significant digits. Default: enough for the string to convert back to the same limbs
+        (17, 34 or 66 by limb count).
+    exact : bool, optional
+        Give the full, exact decimal expansion instead (``digits`` is then ignored).
+
+    Returns
+    -------
+    str or numpy.ndarray
+        One string for shape ``(k,)``, else an object array of strings.
+
+    Examples
+    --------
+    >>> from loschmidt import precision
+    >>> precision.to_string(precision.to_limbs("2/3", "qd"), 40)
+    '6.666666666666666666666666666666666666667e-1'
+    >>> precision.to_string([0.1], exact=True)
+    '1.000000000000000055511151231257827021181583404541015625e-1'
     """
     a = _check_limbs(limbs)
-    if digits is not None and (not isinstance(digits, numbers.Integral) or digits < 1):
-        raise ValueError(f"digits: expected a positive integer, got {digits!r}")
+    if digits is not None and (isinstance(digits, (bool, np.bool_)) or not isinstance(digits, numbers.Integral)
+                               or not 1 <= digits <= _MAX_DIGITS):
+        raise ValueError(f"digits: expected a positive integer up to {_MAX_DIGITS}, got {digits!r}")
     nd = None if exact else (int(digits) if digits is not None else {1: 17, 2: 34, 4: 66}[a.shape[-1]])
     with decimal.localcontext() as ctx:
         ctx.prec = 100000
@@ -270,13 +489,45 @@ def to_string(limbs: Any, digits: int | None = None, *, exact: bool = False) -> 
 
 
 def to_float(limbs: Any) -> Any:
-    """Round a limb array to float64 (sum of limbs, largest first)."""
+    """Round a limb array to float64.
+
+    Parameters
+    ----------
+    limbs : array-like, shape (..., k)
+        Float64 limbs.
+
+    Returns
+    -------
+    numpy.ndarray
+        The sum of the limbs, smallest first (shape ``limbs.shape[:-1]``).
+    """
     a = _check_limbs(limbs)
-    return a[..., ::-1].sum(axis=-1) if a.shape[-1] > 1 else a[..., 0].copy()
+    with np.errstate(over="ignore"):  # limbs whose sum is beyond the double range round to +-inf
+        return a[..., ::-1].sum(axis=-1) if a.shape[-1] > 1 else a[..., 0].copy()
 
 
 def convert(limbs: Any, precision: str) -> np.ndarray:
-    """Re-express limbs in another precision: widening is exact, narrowing rounds as ``to_limbs`` does."""
+    """Re-express limbs in another precision.
+
+    Parameters
+    ----------
+    limbs : array-like, shape (..., k)
+        Float64 limbs.
+    precision : {"f64", "f64c", "dd", "qd"}
+        The target precision.
+
+    Returns
+    -------
+    numpy.ndarray
+        Limbs of shape ``(..., k')``: widening is exact (zero limbs appended), narrowing rounds once,
+        as ``to_limbs`` does.
+
+    Examples
+    --------
+    >>> from loschmidt import precision
+    >>> precision.convert([0.5], "dd")
+    array([0.5, 0. ])
+    """
     a = _check_limbs(limbs)
     k = limb_count(precision)
     if a.shape[-1] <= k:
@@ -324,35 +575,145 @@ def _unary(op: int, a: Any, precision: str) -> np.ndarray:
 
 
 def add(a: Any, b: Any, precision: str) -> np.ndarray:
-    """Element-wise ``a + b`` in ``precision`` (limb arrays or numbers; broadcasting)."""
+    """Element-wise ``a + b`` in a working precision, by the engine's arithmetic.
+
+    Parameters
+    ----------
+    a, b : limb arrays (..., k) or numbers
+        Operands; numbers are converted with ``to_limbs``. Shapes broadcast.
+    precision : {"f64", "f64c", "dd", "qd"}
+        The working precision (``f64c`` computes as ``f64``).
+
+    Returns
+    -------
+    numpy.ndarray
+        Limbs of the sums.
+
+    Examples
+    --------
+    >>> from loschmidt import precision
+    >>> s = precision.add("0.1", "0.2", "dd")
+    >>> precision.to_string(s, 20)
+    '3.0000000000000000000e-1'
+    """
     return _binary(0, a, b, precision)
 
 
 def sub(a: Any, b: Any, precision: str) -> np.ndarray:
-    """Element-wise ``a - b`` in ``precision``."""
+    """Element-wise ``a - b`` in a working precision.
+
+    Parameters
+    ----------
+    a, b : limb arrays (..., k) or numbers
+        Operands (broadcasting).
+    precision : {"f64", "f64c", "dd", "qd"}
+        The working precision.
+
+    Returns
+    -------
+    numpy.ndarray
+        Limbs of the differences.
+    """
     return _binary(1, a, b, precision)
 
 
 def mul(a: Any, b: Any, precision: str) -> np.ndarray:
-    """Element-wise ``a * b`` in ``precision``."""
+    """Element-wise ``a * b`` in a working precision.
+
+    Parameters
+    ----------
+    a, b : limb arrays (..., k) or numbers
+        Operands (broadcasting).
+    precision : {"f64", "f64c", "dd", "qd"}
+        The working precision.
+
+    Returns
+    -------
+    numpy.ndarray
+        Limbs of the products.
+    """
     return _binary(2, a, b, precision)
 
 
 def div(a: Any, b: Any, precision: str) -> np.ndarray:
-    """Element-wise ``a / b`` in ``precision``."""
+    """Element-wise ``a / b`` in a working precision.
+
+    Parameters
+    ----------
+    a, b : limb arrays (..., k) or numbers
+        Operands (broadcasting).
+    precision : {"f64", "f64c", "dd", "qd"}
+        The working precision.
+
+    Returns
+    -------
+    numpy.ndarray
+        Limbs of the quotients.
+
+    Examples
+    --------
+    >>> from loschmidt import precision
+    >>> precision.to_string(precision.div(1, 3, "qd"), 64)
+    '3.333333333333333333333333333333333333333333333333333333333333333e-1'
+    """
     return _binary(3, a, b, precision)
 
 
 def sqrt(a: Any, precision: str) -> np.ndarray:
-    """Element-wise square root in ``precision``."""
+    """Element-wise square root in a working precision.
+
+    Parameters
+    ----------
+    a : limb array (..., k) or numbers
+        Non-negative operands.
+    precision : {"f64", "f64c", "dd", "qd"}
+        The working precision.
+
+    Returns
+    -------
+    numpy.ndarray
+        Limbs of the square roots.
+
+    Examples
+    --------
+    >>> from loschmidt import precision
+    >>> precision.to_string(precision.sqrt(2, "dd"), 30)
+    '1.41421356237309504880168872421e+0'
+    """
     return _unary(0, a, precision)
 
 
 def neg(a: Any, precision: str) -> np.ndarray:
-    """Element-wise negation (exact)."""
+    """Element-wise negation (exact).
+
+    Parameters
+    ----------
+    a : limb array (..., k) or numbers
+        Operands.
+    precision : {"f64", "f64c", "dd", "qd"}
+        The working precision.
+
+    Returns
+    -------
+    numpy.ndarray
+        Limbs of ``-a``.
+    """
     return _unary(1, a, precision)
 
 
 def absolute(a: Any, precision: str) -> np.ndarray:
-    """Element-wise absolute value (exact)."""
+    """Element-wise absolute value (exact).
+
+    Parameters
+    ----------
+    a : limb array (..., k) or numbers
+        Operands.
+    precision : {"f64", "f64c", "dd", "qd"}
+        The working precision.
+
+    Returns
+    -------
+    numpy.ndarray
+        Limbs of ``abs(a)``.
+    """
     return _unary(2, a, precision)

@@ -30,19 +30,58 @@ from . import precision as _p
 
 __all__ = ["FORMAT_VERSION", "limbs_to_json", "limbs_from_json", "write_json", "read_json"]
 
+#: Version of the JSON layout written by ``System.save`` and ``Result.save``; files of a newer
+#: version are refused.
 FORMAT_VERSION = 1
 
 
 def limbs_to_json(a: np.ndarray) -> Any:
-    """Nested lists of hex-float strings, exact."""
+    """Limbs as nested lists of hexadecimal float strings (exact).
+
+    Parameters
+    ----------
+    a : array-like
+        float64 values of any shape.
+
+    Returns
+    -------
+    str or list
+        ``float.hex`` strings, nested as the array.
+
+    Examples
+    --------
+    >>> from loschmidt.serialize import limbs_from_json, limbs_to_json
+    >>> limbs_to_json([0.1, 0.0])
+    ['0x1.999999999999ap-4', '0x0.0p+0']
+    >>> limbs_from_json(limbs_to_json([0.1, 0.0]), "x")
+    array([0.1, 0. ])
+    """
     arr = np.asarray(a, dtype=np.float64)
     if arr.ndim == 0:
         return float(arr).hex()
     return [limbs_to_json(x) for x in arr]
 
 
-def limbs_from_json(obj: Any, name: str) -> np.ndarray:
-    """The inverse of ``limbs_to_json``; ``ValueError`` naming ``name`` on malformed input."""
+def limbs_from_json(obj: Any, name: str, finite: bool = True) -> np.ndarray:
+    """The inverse of ``limbs_to_json``.
+
+    Parameters
+    ----------
+    obj : str or nested lists of str
+        Hexadecimal float strings.
+    name : str
+        The field name used in error messages.
+
+    Returns
+    -------
+    numpy.ndarray
+        float64 values, bit for bit.
+
+    Raises
+    ------
+    ValueError
+        On malformed, ragged or non-finite input.
+    """
 
     def conv(x: Any) -> Any:
         if isinstance(x, list):
@@ -50,8 +89,9 @@ def limbs_from_json(obj: Any, name: str) -> np.ndarray:
         if isinstance(x, str):
             try:
                 return float.fromhex(x)
-            except ValueError:
-                raise ValueError(f"{name}: {x!r} is not a hexadecimal float") from None
+            except (ValueError, OverflowError):
+                text = repr(x) if len(x) <= 40 else repr(x[:37]) + "..."
+                raise ValueError(f"{name}: {text} is not a hexadecimal float of the double range") from None
         raise ValueError(f"{name}: expected hexadecimal float strings, got {type(x).__name__}")
 
     try:
@@ -60,18 +100,32 @@ def limbs_from_json(obj: Any, name: str) -> np.ndarray:
         if name in str(exc):
             raise
         raise ValueError(f"{name}: not a rectangular array") from None
-    if not np.all(np.isfinite(arr)):
+    if finite and not np.all(np.isfinite(arr)):
         raise ValueError(f"{name}: values must be finite")
     return arr
 
 
 def decimal_strings(limbs: np.ndarray) -> Any:
-    s = _p.to_string(limbs)
+    """Decimal renderings of a limb array for people to read (``precision.to_string``), as lists."""
+    a = np.asarray(limbs, dtype=np.float64)
+    if not np.all(np.isfinite(a)):  # the state of a failed run: its infinities and NaN as they are
+        rows = a.reshape(-1, a.shape[-1])
+        out = [str(_p.to_string(r)) if np.all(np.isfinite(r)) else repr(float(r[0])) for r in rows]
+        return out[0] if a.ndim == 1 else np.array(out, dtype=object).reshape(a.shape[:-1]).tolist()
+    s = _p.to_string(a)
     return s.tolist() if isinstance(s, np.ndarray) else s
 
 
 def write_json(path: Any, payload: dict) -> None:
-    """Write atomically: a temporary file in the same directory, then a rename."""
+    """Write a JSON record atomically: a temporary file in the same directory, then a rename.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The file.
+    payload : dict
+        The record (``System.to_dict``, ``Result.to_dict``).
+    """
     path = os.fspath(path)
     directory = os.path.dirname(os.path.abspath(path))
     fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".json", dir=directory)
@@ -87,6 +141,25 @@ def write_json(path: Any, payload: dict) -> None:
 
 
 def read_json(path: Any, expected_format: str) -> dict:
+    """Read a JSON record written by ``write_json`` and check its format.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The file.
+    expected_format : str
+        ``"loschmidt.system"`` or ``"loschmidt.result"``.
+
+    Returns
+    -------
+    dict
+        The record.
+
+    Raises
+    ------
+    ValueError
+        When the file is no JSON, holds another format, or a newer format version.
+    """
     path = os.fspath(path)
     with open(path, encoding="utf-8") as fh:
         try:

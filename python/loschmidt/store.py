@@ -51,7 +51,24 @@ def canonical_json(value: Any) -> str:
 
 
 def definition_hash(definition: Mapping[str, Any]) -> str:
-    """SHA-256 of the canonical JSON of a sweep definition."""
+    """SHA-256 of the canonical JSON of a sweep definition.
+
+    Parameters
+    ----------
+    definition : mapping
+        JSON-friendly sweep definition (``Sweep.definition``).
+
+    Returns
+    -------
+    str
+        64 hexadecimal digits; the same for definitions equal as JSON, whatever the key order.
+
+    Examples
+    --------
+    >>> from loschmidt.store import definition_hash
+    >>> definition_hash({"a": 1, "b": [2, 3]}) == definition_hash({"b": [2, 3], "a": 1})
+    True
+    """
     return hashlib.sha256(canonical_json(definition).encode()).hexdigest()
 
 
@@ -60,8 +77,30 @@ def definition_hash(definition: Mapping[str, Any]) -> str:
 
 
 def columns_to_arrow(columns: Mapping[str, np.ndarray], metadata: Mapping[bytes, bytes] | None = None):
-    """A ``pyarrow.Table`` from (M, ...) arrays: 1-D numeric or string arrays become plain columns,
-    arrays with more axes fixed-size lists of their flattened rows (shape kept in field metadata)."""
+    """A ``pyarrow.Table`` from columns of M rows each.
+
+    Parameters
+    ----------
+    columns : mapping of str to array-like
+        (M, ...) arrays: 1-D numeric or string arrays become plain columns, arrays with more axes
+        fixed-size lists of their flattened rows (the per-row shape kept in the field metadata).
+    metadata : mapping of bytes to bytes, optional
+        Schema metadata.
+
+    Returns
+    -------
+    pyarrow.Table
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from loschmidt.store import columns_to_arrow, limbs
+    >>> t = columns_to_arrow({"member": np.arange(2), "x": np.arange(12.0).reshape(2, 3, 2)})
+    >>> t.num_rows, t.column_names
+    (2, ['member', 'x'])
+    >>> limbs(t, "x").shape
+    (2, 3, 2)
+    """
     pa, _pq = _pa()
     fields, arrays = [], []
     rows = None
@@ -87,7 +126,20 @@ def columns_to_arrow(columns: Mapping[str, np.ndarray], metadata: Mapping[bytes,
 
 
 def limbs(table: Any, name: str) -> np.ndarray:
-    """A full-precision column of a store's table as an array of shape (rows, ..., k)."""
+    """A full-precision column of a store's table as an array.
+
+    Parameters
+    ----------
+    table : pyarrow.Table
+        Rows of a store (``Sweep.results(format="arrow")``, ``read_store(..., format="arrow")``).
+    name : str
+        A limb column (``"returned_positions"``, ``"forward_t"`` ...).
+
+    Returns
+    -------
+    numpy.ndarray
+        float64 of shape (rows, ..., k), the per-row shape read from the field metadata.
+    """
     pa, _pq = _pa()
     if not isinstance(table, pa.Table):
         raise TypeError("table: expected a pyarrow.Table (Sweep.results(format='arrow'))")
@@ -118,7 +170,13 @@ def _pid_alive(pid: int) -> bool:
 
 
 class SweepStore:
-    """A store directory (see the module docstring)."""
+    """A store directory (see the module docstring); ``Sweep`` drives it.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The directory (created by ``open`` when needed).
+    """
 
     def __init__(self, path: Any) -> None:
         if path is None:
@@ -130,6 +188,13 @@ class SweepStore:
 
     # -- manifest -------------------------------------------------------------------------------------
     def read_manifest(self) -> dict | None:
+        """The manifest of the store.
+
+        Returns
+        -------
+        dict or None
+            ``{"definition": ..., "definition_hash": ...}``, or None when there is no manifest yet.
+        """
         p = self.path / MANIFEST
         if not p.exists():
             return None
@@ -142,8 +207,22 @@ class SweepStore:
         """Check that the store can hold this definition (creating it if needed) before any work.
 
         A new store gets its manifest now; an existing one must have been made by the same
-        definition. Returns the definition hash. Raises ``ValueError`` for an unwritable path, a
-        foreign directory or a different definition.
+        definition.
+
+        Parameters
+        ----------
+        definition : mapping
+            JSON-friendly sweep definition.
+
+        Returns
+        -------
+        str
+            The definition hash.
+
+        Raises
+        ------
+        ValueError
+            For an unwritable path, a foreign directory or a different definition.
         """
         digest = definition_hash(definition)
         if self.path.exists() and not self.path.is_dir():
@@ -195,10 +274,27 @@ class SweepStore:
 
     # -- chunks ---------------------------------------------------------------------------------------
     def chunk_path(self, index: int) -> Path:
+        """The file of chunk ``index`` (``chunks/chunk-NNNNNN.parquet``), whether or not it exists.
+
+        Parameters
+        ----------
+        index : int
+            Chunk index.
+
+        Returns
+        -------
+        pathlib.Path
+        """
         return self.chunk_dir / f"chunk-{index:06d}.parquet"
 
     def finished(self) -> dict[int, Path]:
-        """Index -> file of every finished chunk."""
+        """Every finished chunk.
+
+        Returns
+        -------
+        dict of int to pathlib.Path
+            Chunk index -> its file, in index order.
+        """
         if not self.chunk_dir.is_dir():
             return {}
         out = {}
@@ -209,7 +305,19 @@ class SweepStore:
         return dict(sorted(out.items()))
 
     def chunk_info(self, index: int) -> dict:
-        """The metadata a finished chunk was written with (index, start, rows, hash, definition)."""
+        """The metadata a finished chunk was written with.
+
+        Parameters
+        ----------
+        index : int
+            A finished chunk.
+
+        Returns
+        -------
+        dict
+            ``index``, ``start`` (first member), ``rows``, ``hash`` (content hash of its initial
+            conditions) and ``definition_hash``.
+        """
         _pa_mod, pq = _pa()
         meta = pq.read_schema(self.chunk_path(index)).metadata or {}
         if _CHUNK_KEY not in meta:
@@ -229,7 +337,22 @@ class SweepStore:
                     pass
 
     def write_chunk(self, index: int, table: Any, info: Mapping[str, Any]) -> Path:
-        """Write one finished chunk atomically (temporary file, fsync, rename)."""
+        """Write one finished chunk atomically (temporary file, fsync, rename).
+
+        Parameters
+        ----------
+        index : int
+            Chunk index.
+        table : pyarrow.Table
+            Its rows.
+        info : mapping
+            Chunk metadata (see ``chunk_info``).
+
+        Returns
+        -------
+        pathlib.Path
+            The chunk's file.
+        """
         _pa_mod, pq = _pa()
         meta = dict(table.schema.metadata or {})
         meta[_CHUNK_KEY] = canonical_json(dict(info)).encode()
@@ -259,7 +382,18 @@ class SweepStore:
         os.replace(tmp, target)
 
     def read(self, columns: Iterable[str] | None = None):
-        """Every finished chunk as one ``pyarrow.Table``, rows in member order."""
+        """Every finished chunk as one table.
+
+        Parameters
+        ----------
+        columns : iterable of str, optional
+            Columns to read (default all).
+
+        Returns
+        -------
+        pyarrow.Table
+            Rows in member order.
+        """
         pa, pq = _pa()
         files = list(self.finished().values())
         cols = None if columns is None else list(columns)
@@ -275,8 +409,28 @@ class SweepStore:
 
 
 def read_store(path: Any, format: str = "pandas", columns: Iterable[str] | None = None) -> Any:
-    """The results held by a sweep store (finished chunks only): a pandas DataFrame, or with
-    ``format="arrow"`` a ``pyarrow.Table`` (whose limb columns ``limbs`` turns into arrays)."""
+    """The results held by a sweep store (finished chunks only).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The store directory.
+    format : {"pandas", "arrow"}, optional
+        A pandas DataFrame (default) or a ``pyarrow.Table`` (whose limb columns ``limbs`` turns
+        into arrays).
+    columns : iterable of str, optional
+        Columns to read (default all).
+
+    Returns
+    -------
+    pandas.DataFrame or pyarrow.Table
+        One row per finished member, in member order.
+
+    Raises
+    ------
+    ValueError
+        When ``path`` holds no store.
+    """
     store = SweepStore(path)
     if store.read_manifest() is None:
         raise ValueError(f"store: {store.path} holds no {MANIFEST}")

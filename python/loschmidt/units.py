@@ -51,18 +51,25 @@ __all__ = [
 
 _DPS = 50  # working digits for derived constants; far more than a double needs
 
+#: The astronomical unit in metres, exact (IAU 2012 Resolution B2).
 AU = 149597870700.0  # m, exact (IAU 2012 B2)
+#: Nominal solar mass parameter GM_sun in m^3 s^-2 (IAU 2015 Resolution B3).
 GM_SUN = 1.3271244e20  # m^3 s^-2, nominal (IAU 2015 B3)
+#: Speed of light in m/s, exact (SI definition).
 C = 299792458.0  # m/s, exact (SI)
+#: Planck length in metres (CODATA 2018).
 PLANCK_LENGTH = 1.616255e-35  # m (CODATA 2018)
+#: Newton's constant in m^3 kg^-1 s^-2 (CODATA 2018); used only for ``SOLAR_MASS`` in kg.
 NEWTON_G = 6.67430e-11  # m^3 kg^-1 s^-2 (CODATA 2018)
+#: One day, 86400 s.
 DAY = 86400.0  # s
+#: The Julian year, 365.25 days = 31 557 600 s (IAU).
 YEAR = 365.25 * DAY  # s, Julian year (exact: 31 557 600 s)
 
 with mpmath.workdps(_DPS):
-    # pc = (648000 / pi) au (IAU 2015 B2); rounded once to the nearest double.
+    #: The parsec in metres, (648000 / pi) au (IAU 2015 Resolution B2), rounded once to a double.
     PARSEC = float(mpmath.mpf(648000) / mpmath.pi * mpmath.mpf(AU))
-    # nominal solar mass in kg (IAU 2015 B3 with CODATA 2018 G)
+    #: Nominal solar mass in kg, GM_SUN / NEWTON_G (relative uncertainty about 2e-5, from G).
     SOLAR_MASS = float(mpmath.mpf(GM_SUN) / mpmath.mpf(NEWTON_G))
 
 
@@ -93,7 +100,9 @@ def _positive_scalar(value: Any, name: str, unit: str | None = None) -> float:
         value = float(value)
     if isinstance(value, (bool, np.bool_)) or not isinstance(value, (numbers.Real, np.floating, np.integer)):
         raise TypeError(f"{name} must be a real number, got {type(value).__name__}")
-    x = float(value)
+    from .precision import _real
+
+    x = _real(value)
     if not math.isfinite(x) or x <= 0.0:
         raise ValueError(f"{name} must be positive and finite, got {value!r}")
     return x
@@ -112,12 +121,27 @@ def _values(value: Any, name: str, unit: str | None = None) -> Any:
     if isinstance(value, (bool, np.bool_)):
         raise TypeError(f"{name} must be a real number, got bool")
     if isinstance(value, (numbers.Real, np.floating, np.integer)):
-        return float(value)
-    try:
-        arr = np.asarray(value, dtype=np.float64)
-    except (TypeError, ValueError):
-        raise TypeError(f"{name} must be a real number or an array of them, got {type(value).__name__}") from None
+        from .precision import _real
+
+        arr = _real(value)
+    else:
+        try:
+            raw = np.asarray(value)
+            if raw.dtype.kind in "bcmMSUV":  # booleans, complex numbers (their imaginary part), dates, text
+                raise TypeError
+            arr = np.asarray(raw, dtype=np.float64)
+        except (TypeError, ValueError, OverflowError):
+            raise TypeError(f"{name} must be a real number or an array of them, got {type(value).__name__}") from None
+    if not np.all(np.isfinite(arr)):
+        raise ValueError(f"{name} must be finite")
     return arr
+
+
+def _apply(value: Any, op: str, factor: float) -> Any:
+    """``value * factor`` or ``value / factor``; a result beyond double range is +-inf, without a warning
+    (as for Python floats)."""
+    with np.errstate(over="ignore", under="ignore"):
+        return value * factor if op == "*" else value / factor
 
 
 class Scale:
@@ -136,6 +160,27 @@ class Scale:
     Conversions take a float or an array (N-body units in, SI out, and the reverse) and return the
     same kind: ``to_seconds``, ``from_seconds``, ``to_years``, ``from_years``, ``to_metres``,
     ``from_metres``, ``to_metres_per_second``, ``from_metres_per_second``.
+
+    Parameters
+    ----------
+    mass : float or astropy Quantity, optional
+        The mass unit in solar masses (default 1).
+    length : float or astropy Quantity, optional
+        The length unit in metres (default one parsec, ``PARSEC``).
+
+    Examples
+    --------
+    >>> from loschmidt import units
+    >>> s = units.Scale(mass=1e6, length=units.PARSEC)   # a million suns, one parsec
+    >>> print(f"{s.to_years(1):.1f} yr, {s.velocity / 1e3:.2f} km/s, c = {s.c:.2f}")
+    14909.6 yr, 65.58 km/s, c = 4571.30
+    >>> s.decimal("c", 30)             # for an extended-precision run
+    '4.57130457797273665850218368779e+3'
+    >>> print(f"{s.planck_length:.4e}")
+    5.2379e-52
+    >>> earth = units.Scale(mass=1, length=units.AU)
+    >>> round(earth.to_years(2 * 3.141592653589793), 4)   # one orbit at 1 au: a year
+    1.0
     """
 
     __slots__ = ("_mass", "_length", "_derived")
@@ -146,6 +191,12 @@ class Scale:
         self._mass = _positive_scalar(mass, "mass", "M_sun")
         self._length = _positive_scalar(length, "length", "m")
         self._derived = {name: float(self._exact(name, _DPS)) for name in self._QUANTITIES}
+        for name, value in self._derived.items():
+            if not (math.isfinite(value) and value >= np.finfo(np.float64).tiny):  # beyond the normal doubles
+                raise ValueError(
+                    f"mass, length: with mass={self._mass!r} and length={self._length!r} the unit of {name} "
+                    f"({mpmath.nstr(self._exact(name, 10), 5)}) lies outside the range of a double"
+                )
 
     # exact derivation ----------------------------------------------------------------------------
     def _exact(self, name: str, dps: int) -> mpmath.mpf:
@@ -176,8 +227,22 @@ class Scale:
         return v
 
     def decimal(self, name: str, digits: int = 40) -> str:
-        """A derived quantity (``"time"``, ``"c"``, ...) as a decimal string of ``digits`` significant
-        digits, computed from the exact inputs (for extended-precision runs)."""
+        """A derived quantity as a decimal string, computed from the exact inputs.
+
+        Parameters
+        ----------
+        name : str
+            ``"gm"``, ``"mass_kg"``, ``"time"``, ``"velocity"``, ``"c"``, ``"planck_length"``,
+            ``"mass"`` or ``"length"``.
+        digits : int, optional
+            Significant digits, 1 to 1000 (default 40).
+
+        Returns
+        -------
+        str
+            The value, correctly rounded; feed it to an extended-precision run (``c=`` of
+            ``loschmidt.integrate``) without a detour through a double.
+        """
         if isinstance(digits, bool) or not isinstance(digits, (int, np.integer)) or not 1 <= digits <= 1000:
             raise ValueError(f"digits must be an integer in [1, 1000], got {digits!r}")
         v = self._exact(name, int(digits) + 10)
@@ -227,36 +292,124 @@ class Scale:
 
     # conversions ---------------------------------------------------------------------------------
     def to_seconds(self, t: Any) -> Any:
-        """N-body time -> seconds."""
-        return _values(t, "t") * self.time
+        """N-body time to seconds.
+
+        Parameters
+        ----------
+        t : float or array-like
+            Time in N-body units.
+
+        Returns
+        -------
+        float or numpy.ndarray
+            Seconds.
+        """
+        return _apply(_values(t, "t"), "*", self.time)
 
     def from_seconds(self, seconds: Any) -> Any:
-        """Seconds (or an astropy time Quantity) -> N-body time."""
-        return _values(seconds, "seconds", "s") / self.time
+        """Seconds to N-body time.
+
+        Parameters
+        ----------
+        seconds : float, array-like or astropy Quantity
+            Time in seconds (or any time unit, as a Quantity).
+
+        Returns
+        -------
+        float or numpy.ndarray
+            N-body time.
+        """
+        return _apply(_values(seconds, "seconds", "s"), "/", self.time)
 
     def to_years(self, t: Any) -> Any:
-        """N-body time -> Julian years."""
-        return _values(t, "t") * (self.time / YEAR)
+        """N-body time to Julian years.
+
+        Parameters
+        ----------
+        t : float or array-like
+            Time in N-body units.
+
+        Returns
+        -------
+        float or numpy.ndarray
+            Julian years.
+        """
+        return _apply(_values(t, "t"), "*", self.time / YEAR)
 
     def from_years(self, years: Any) -> Any:
-        """Julian years -> N-body time."""
-        return _values(years, "years") * (YEAR / self.time)
+        """Julian years to N-body time.
+
+        Parameters
+        ----------
+        years : float or array-like
+            Time in Julian years.
+
+        Returns
+        -------
+        float or numpy.ndarray
+            N-body time.
+        """
+        return _apply(_values(years, "years"), "*", YEAR / self.time)
 
     def to_metres(self, x: Any) -> Any:
-        """N-body length -> metres."""
-        return _values(x, "x") * self.length
+        """N-body length to metres.
+
+        Parameters
+        ----------
+        x : float or array-like
+            Length in N-body units.
+
+        Returns
+        -------
+        float or numpy.ndarray
+            Metres.
+        """
+        return _apply(_values(x, "x"), "*", self.length)
 
     def from_metres(self, metres: Any) -> Any:
-        """Metres (or an astropy length Quantity) -> N-body length."""
-        return _values(metres, "metres", "m") / self.length
+        """Metres to N-body length.
+
+        Parameters
+        ----------
+        metres : float, array-like or astropy Quantity
+            Length in metres (or any length unit, as a Quantity).
+
+        Returns
+        -------
+        float or numpy.ndarray
+            N-body length.
+        """
+        return _apply(_values(metres, "metres", "m"), "/", self.length)
 
     def to_metres_per_second(self, v: Any) -> Any:
-        """N-body velocity -> m/s."""
-        return _values(v, "v") * self.velocity
+        """N-body velocity to metres per second.
+
+        Parameters
+        ----------
+        v : float or array-like
+            Velocity in N-body units.
+
+        Returns
+        -------
+        float or numpy.ndarray
+            Metres per second.
+        """
+        return _apply(_values(v, "v"), "*", self.velocity)
 
     def from_metres_per_second(self, metres_per_second: Any) -> Any:
-        """m/s (or an astropy velocity Quantity) -> N-body velocity."""
-        return _values(metres_per_second, "metres_per_second", "m/s") / self.velocity
+        """Metres per second to N-body velocity.
+
+        Parameters
+        ----------
+        metres_per_second : float, array-like or astropy Quantity
+            Velocity in m/s (or any velocity unit, as a Quantity).
+
+        Returns
+        -------
+        float or numpy.ndarray
+            N-body velocity.
+        """
+        return _apply(_values(metres_per_second, "metres_per_second", "m/s"), "/", self.velocity)
 
     # -------------------------------------------------------------------------------------------
     def __repr__(self) -> str:
