@@ -309,7 +309,7 @@ def sweep_config(path: Any) -> dict:
     if options.get("c") == "units":
         if not units:
             raise ConfigError(f"{where}: [task] c = \"units\" needs a [units] section (mass, length)")
-        options["c"] = _scale(units).decimal("c")
+        options["c"] = _scale(units, where).decimal("c")
     base = Path(path).resolve().parent
     store["path"] = str((base / store["path"]).resolve()) if not Path(store["path"]).is_absolute() else store["path"]
     return {"ensemble": (family, ens_args), "task": (name, options), "store": store, "execution": execution,
@@ -376,12 +376,17 @@ def _build_system(family: str, args: dict, precision: str, where: str) -> Any:
         raise ConfigError(f"{where}: [system] {exc}") from None
 
 
-def _scale(units: Mapping[str, Any]) -> Any:
+def _scale(units: Mapping[str, Any], where: str = "") -> Any:
     if not units:
         return None
     from .report import make_scale
 
-    return make_scale(units.get("mass", 1.0), units.get("length", "pc"))
+    try:
+        return make_scale(units.get("mass", 1.0), units.get("length", "pc"))
+    except (ValueError, TypeError) as exc:  # e.g. a unit of time beyond the double range
+        if not where:
+            raise
+        raise ConfigError(f"{where}: [units] {exc}") from None
 
 
 def _units_note(units: Mapping[str, Any]) -> dict | None:
@@ -445,7 +450,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     family, sys_args = cfg["system"]
     system = _build_system(family, sys_args, precision, where)
     t = run["t"]
-    scale = _scale(cfg["units"])
+    scale = _scale(cfg["units"], where)
     from tqdm.auto import tqdm
 
     legs = 2 if run.get("roundtrip") else 1

@@ -728,6 +728,15 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
     }
   }
   store();
+  // The conversion back from chain coordinates can overflow where the chain itself did not
+  // (products of extreme masses): never report a finished run with a non-finite state.
+  {
+    using std::isfinite;
+    bool finite = isfinite(t);
+    for (const T& q : s.x) finite = finite && isfinite(q);
+    for (const T& q : s.v) finite = finite && isfinite(q);
+    if (!finite) status = Status::nonfinite;
+  }
   return finish_counted(status);
 }
 
