@@ -16,6 +16,7 @@
 
 #include "interrupt.hpp"
 #include "limbs.hpp"
+#include "options.hpp"
 #include "loschmidt/batch.hpp"
 #include "loschmidt/scalar/scalar.hpp"
 
@@ -71,12 +72,7 @@ py::dict run(BatchTask task, const std::string& method, const limb_array& masses
     throw py::value_error("c: expected the limbs of the speed of light");
 
   BatchSettings settings;
-  settings.options.rtol = rtol;
-  settings.options.atol = atol;
-  settings.options.max_steps = max_steps;
-  settings.options.max_wall_time = max_wall_time;
-  settings.options.max_order = max_order;
-  settings.options.initial_step = initial_step;
+  settings.options = base_options(rtol, atol, max_steps, max_wall_time, max_order, initial_step);
   settings.threads = threads;
   settings.radii = radii;
   settings.chain.regularization = static_cast<ChainRegularization>(regularization);

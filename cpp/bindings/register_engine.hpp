@@ -7,6 +7,7 @@
 
 #include "interrupt.hpp"
 #include "limbs.hpp"
+#include "options.hpp"
 #include "loschmidt/batch.hpp"
 #include "loschmidt/methods/chain.hpp"
 #include "loschmidt/methods/gbs.hpp"
@@ -109,13 +110,7 @@ void register_engine(py::module_& m, const std::string& suffix) {
           };
 
           interrupt_poll poll;
-          Options opt;
-          opt.rtol = rtol;
-          opt.atol = atol;
-          opt.max_steps = max_steps;
-          opt.max_wall_time = max_wall_time;
-          opt.max_order = max_order;
-          opt.initial_step = initial_step;
+          Options opt = base_options(rtol, atol, max_steps, max_wall_time, max_order, initial_step);
           opt.stop = static_cast<StopCondition>(stop);
           opt.check_every = check_every;
           opt.distance_factor = distance_factor;

@@ -8,6 +8,7 @@
 
 #include "interrupt.hpp"
 #include "limbs.hpp"
+#include "options.hpp"
 #include "loschmidt/methods/lyapunov.hpp"
 #include "loschmidt/nbody/diagnostics.hpp"
 #include "register_engine.hpp"  // read_state
@@ -39,13 +40,7 @@ void register_lyapunov(py::module_& m, const std::string& suffix) {
           };
 
           interrupt_poll poll;
-          Options opt;
-          opt.rtol = rtol;
-          opt.atol = atol;
-          opt.max_steps = max_steps;
-          opt.max_wall_time = max_wall_time;
-          opt.max_order = max_order;
-          opt.initial_step = initial_step;
+          Options opt = base_options(rtol, atol, max_steps, max_wall_time, max_order, initial_step);
           opt.fixed_step = fixed_step;
           opt.poll = [&poll]() { return poll(); };
 
