@@ -90,7 +90,7 @@ def _compile(source: Path, flags: list[str], extra_inputs: list[Path]) -> tuple[
         return exe, "cached"
     tmp = exe.with_suffix(f".tmp{os.getpid()}")
     cmd = [gxx, *flags, "-o", str(tmp), str(source)]
-    proc = subprocess.run(cmd, capture_output=True, text=True, timeout=300)
+    proc = subprocess.run(cmd, capture_output=True, text=True, timeout=1800)  # loaded machines compile slowly
     if proc.returncode != 0:
         return None, f"compile failed: {' '.join(cmd)}\n{proc.stderr[-2000:]}"
     tmp.replace(exe)

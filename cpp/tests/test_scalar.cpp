@@ -9,7 +9,7 @@
 //                    16/8/4 limb products)
 //   /                (q*b - a) / a, which IS the relative error of the quotient q
 //   sqrt             (y^2 - a) / (2a), the relative error of y to first order
-//   rsqrt (qd)       (a x^2 - 1) / 2, likewise (triple products are exact here too)
+//   rsqrt            (a x^2 - 1) / 2, likewise (triple products are exact here too)
 //   comparisons      against the exact sign of a - b
 // Bounds: dd 8u^2 (u = 2^-53; Joldes, Muller & Popescu 2017 prove 3u^2 for +, ~5u^2 for *,
 // 9.8u^2 for / - see double_double.hpp), qd 1e-60 (the interface's requirement).
@@ -480,10 +480,10 @@ void test_arith(const char* tname, double bound, double unit, int range, int n) 
     std::printf("%s arithmetic (exact integer reference, bound %.3g = %.1f units)\n", tname, bound,
                 bound / unit);
     rng r(limbs_of<T>() == 2 ? 2 : 4);
-    std::string nm[14];
+    std::string nm[15];
     const char* ops[] = {"add", "sub", "mul", "div", "sqrt", "add_d", "sub_d", "d_sub", "mul_d",
-                         "div_d", "d_div", "pow2_exact", "rsqrt", "div_long"};
-    const int nops = limbs_of<T>() == 4 ? 14 : 12;  // rsqrt and the long division are qd-only
+                         "div_d", "d_div", "pow2_exact", "rsqrt", "add_same", "div_long"};
+    const int nops = limbs_of<T>() == 4 ? 15 : 14;  // the long division is qd-only
     std::vector<err_stat> st;
     st.reserve(nops);
     for (int i = 0; i < nops; ++i) {
@@ -553,7 +553,7 @@ void test_arith(const char* tname, double bound, double unit, int range, int n) 
             add_product(diff, z, z);
             add_value(diff, s, true);
             st[4].record(relative(diff, ref, 2.0L), normalized(z));
-            if constexpr (std::is_same_v<T, qd>) {
+            {
                 if (!(s == T(0))) {  // rsqrt(s) = x: relative error ~ (s*x^2 - 1) / 2
                     const T x = loschmidt::rsqrt(s);
                     exact_sum ref1, diff1;
@@ -571,8 +571,19 @@ void test_arith(const char* tname, double bound, double unit, int range, int n) 
                 add_value(ref, ma);
                 add_product(diff, z, mb);
                 add_value(diff, ma, true);
-                st[13].record(relative(diff, ref), normalized(z));
+                st[14].record(relative(diff, ref), normalized(z));
             }
+        }
+        {  // add_same_sign(|a|, |b|): the addition for same-sign operands (sums of positive terms)
+            const T pa = abs(a), pb = abs(b);
+            const T z = loschmidt::add_same_sign(pa, pb);
+            exact_sum ref, diff;
+            add_value(ref, pa);
+            add_value(ref, pb);
+            add_value(diff, z);
+            add_value(diff, pa, true);
+            add_value(diff, pb, true);
+            st[13].record(relative(diff, ref), normalized(z));
         }
         {  // a + d
             const T z = a + d;

@@ -34,7 +34,7 @@
 // Options as read by this method: initial_step is a PHYSICAL time (the first fictitious step is
 // U(0) times it; 0 = a tenth of the shortest pair time scale); the step floor min_step_fraction
 // applies to the fictitious step, relative to max(first step, fictitious time covered); max_order
-// 0 = 3/4 of scalar_traits<T>::default_max_order() + 1 (see below); Options::sequence is not used
+// 0 = scalar_traits<T>::chain_max_rows() (see below); Options::sequence is not used
 // (ChainOptions::sequence is). Stats::steps counts accepted steps (a landing counts once).
 //
 // Energy as a diagnostic: B is constant, so the numerical orbit keeps (T + B)/U = c nearly
@@ -204,7 +204,7 @@ class ChainStepper {
     auto vec = [&](int off) {
       double e2 = 0, a2 = 0, b2 = 0;
       for (int d = 0; d < 3; ++d) {
-        const double e = to_double(best[off + d] - next[off + d]);
+        const double e = approx_difference(best[off + d], next[off + d]);
         const double a = y0d_[static_cast<std::size_t>(off + d)];
         const double b = a + to_double(best[off + d]);
         e2 += e * e;
@@ -219,7 +219,7 @@ class ChainStepper {
       return true;
     };
     auto scalar = [&](int i, double size) {
-      const double e = to_double(best[i] - next[i]);
+      const double e = approx_difference(best[i], next[i]);
       if (e == 0.0) return true;
       ++groups;
       const double sc = atol_ + rtol_ * size;
@@ -293,11 +293,11 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
   if (!(opt.initial_step >= 0) || !std::isfinite(opt.initial_step))
     throw std::invalid_argument("integrate_chain: initial_step must be finite and >= 0");
   if (!(opt.min_step_fraction >= 0)) throw std::invalid_argument("integrate_chain: min_step_fraction must be >= 0");
-  // Default row limit: 3/4 of the scalar's default, plus one (f64 7, dd 14, qd 25). Measured in
+  // Default row limit: scalar_traits<T>::chain_max_rows() (f64 11, dd 14, qd 25; measured there). Measured in
   // dd: through close pericentre passages the high-order, long steps conserve energy worse at the
   // same tolerance (e = 0.999, 100 periods, rtol 1e-28: 7e-26 at 18 rows, 6e-27 at 14, 5e-29 at 10),
   // and 14 rows cost no more force evaluations than 18; f64 and qd runs are unaffected.
-  const int rows = opt.max_order > 0 ? opt.max_order : scalar_traits<T>::default_max_order() * 3 / 4 + 1;
+  const int rows = opt.max_order > 0 ? opt.max_order : scalar_traits<T>::chain_max_rows();
   if (rows < 3 || rows > sequence_max_rows(copt.sequence))
     throw std::invalid_argument("integrate_chain: max_order out of range for the step sequence");
   {

@@ -87,11 +87,11 @@ inline T chain_forces(int n, const T* m, const T* X, T* q, T* a, T* A, ContactPr
     const T mi = m[i];
     for (int j = i + 1; j < n; ++j) {
       chain_separation(i, j, X, q, d);
-      const T r2 = d[0] * d[0] + d[1] * d[1] + d[2] * d[2];
-      const T r = sqrt(r2);
-      const T inv_r = T(1) / r;
-      const T q3 = inv_r / r2;  // 1/r^3
-      U += mi * m[j] * inv_r;
+      const T r2 = add_same_sign(add_same_sign(d[0] * d[0], d[1] * d[1]), d[2] * d[2]);
+      // 1/r and 1/r^3 from one inverse square root (no square root, no division in T).
+      const T inv_r = rsqrt(r2);
+      const T q3 = (inv_r * inv_r) * inv_r;
+      U = add_same_sign(U, mi * m[j] * inv_r);  // positive terms
       const T qj = m[j] * q3, qi = mi * q3;
       for (int c = 0; c < 3; ++c) {
         a[3 * i + c] += qj * d[c];
@@ -104,7 +104,7 @@ inline T chain_forces(int n, const T* m, const T* X, T* q, T* a, T* A, ContactPr
           reach = probe->merger[i] + probe->merger[j];
           merging = true;
         }
-        const double depth = reach - to_double(r);
+        const double depth = reach - 1.0 / to_double(inv_r);
         if (depth > probe->depth) {
           probe->depth = depth;
           probe->i = i;
@@ -117,6 +117,26 @@ inline T chain_forces(int n, const T* m, const T* X, T* q, T* a, T* A, ContactPr
   for (int k = 0; k + 1 < n; ++k)
     for (int c = 0; c < 3; ++c) A[3 * k + c] = a[3 * (k + 1) + c] - a[3 * k + c];
   return U;
+}
+
+// Kinetic energy relative to the centre of mass from the velocity links alone, by Lagrange's
+// identity sum_i m_i |u_i|^2 = (1/M) sum_{i<j} m_i m_j |v_j - v_i|^2: a sum of positive terms (no
+// cancellation, no division; inv_M = 1/M), with the relative velocities taken from the links as
+// the separations are from X (chain_separation; p: 3n scratch for the prefix sums when n > 3).
+template <class T>
+inline T chain_kinetic(int n, const T* m, const T& inv_M, const T* W, T* p) {
+  if (n > link_sum_span + 1) chain_positions(n, W, p);
+  T sum = T(0);
+  T w[3];
+  for (int i = 0; i < n; ++i) {
+    T si = T(0);
+    for (int j = i + 1; j < n; ++j) {
+      chain_separation(i, j, W, p, w);
+      si = add_same_sign(si, m[j] * add_same_sign(add_same_sign(w[0] * w[0], w[1] * w[1]), w[2] * w[2]));
+    }
+    sum = add_same_sign(sum, m[i] * si);
+  }
+  return scale_pow2(sum * inv_M, 0.5);
 }
 
 // Velocities relative to the centre of mass from the W_k (3n, chain order): p_0 = 0,
@@ -140,7 +160,22 @@ inline T chain_velocities(int n, const T* m, const T& M, const T* W, T* u) {
     }
     kin += m[k] * s;
   }
-  return kin / T(2);
+  return scale_pow2(kin, 0.5);  // exact, as kin / 2 was
+}
+
+// chain_velocities with the centre-of-mass velocity formed by a product with inv_M = 1/M instead of
+// a division (for the kick's hot path; one more rounding per component).
+template <class T>
+inline void chain_velocities_inv(int n, const T* m, const T& inv_M, const T* W, T* u) {
+  T pc[3] = {T(0), T(0), T(0)};
+  u[0] = u[1] = u[2] = T(0);
+  for (int k = 0; k + 1 < n; ++k)
+    for (int d = 0; d < 3; ++d) {
+      u[3 * (k + 1) + d] = u[3 * k + d] + W[3 * k + d];
+      pc[d] += m[k + 1] * u[3 * (k + 1) + d];
+    }
+  for (int d = 0; d < 3; ++d) pc[d] = pc[d] * inv_M;
+  for (int k = 0; k < 3 * n; ++k) u[k] -= pc[k % 3];
 }
 
 // Greedy chain (Mikkola & Aarseth 1993): start from the shortest pair, then repeatedly attach the

@@ -135,7 +135,7 @@ class ExtrapolationTableau {
     for (std::size_t base = 0; base < d; base += stride) {
       const std::size_t end = base + block < d ? base + block : d;
       for (std::size_t i = base; i < end; ++i) {
-        const double diff = to_double(best[i] - next[i]);
+        const double diff = approx_difference(best[i], next[i]);  // not formed in T: judged in double
         if (diff == 0.0) continue;
         const double y0 = sc.y0[i];
         const double y1 = y0 + to_double(best[i]);

@@ -104,6 +104,7 @@ class RegularizedLeapfrog {
     n_ = n;
     m_ = m;
     M_ = total_mass;
+    inv_M_ = T(1) / total_mass;
     reg_ = reg;
     lay_.links = n - 1;
     pn_ = (pn != nullptr && pn->any()) ? pn : nullptr;
@@ -117,6 +118,7 @@ class RegularizedLeapfrog {
     a_.assign(k, T(0));
     A_.assign(k, T(0));
     u_.assign(k, T(0));
+    pw_.assign(k, T(0));
     if (pn_ != nullptr) {
       pnf_.setup(n);
       Wa_.assign(k, T(0));
@@ -143,7 +145,7 @@ class RegularizedLeapfrog {
   // exact orbit both equal 1/U.
   T time_rate(const T* y) {
     if (reg_ == ChainRegularization::logarithmic) {
-      const T kin = chain_velocities(n_, m_, M_, y + lay_.W(), u_.data());
+      const T kin = chain_kinetic(n_, m_, inv_M_, y + lay_.W(), pw_.data());
       return T(1) / (kin + y[lay_.binding()]);
     }
     return T(1) / y[lay_.omega()];
@@ -159,7 +161,7 @@ class RegularizedLeapfrog {
     contact_i_ = contact_j_ = -1;
     nsub_ = nsub;
     const T h = H / T(nsub);
-    const T h2 = H / T(2 * nsub);
+    const T h2 = scale_pow2(h, 0.5);  // = H / (2 nsub): halving is exact
     if (pn_ != nullptr) {  // auxiliary velocity w = v at the start
       const T* W0 = y0 + lay_.W();
       for (int k = 0; k < 3 * lay_.links; ++k) Wa_[static_cast<std::size_t>(k)] = W0[k];
@@ -194,7 +196,7 @@ class RegularizedLeapfrog {
     for (int k = 0; k < 3 * L; ++k) W_[static_cast<std::size_t>(k)] = W0[k] + dW[k];
     T rate_inv;
     if (reg_ == ChainRegularization::logarithmic) {
-      const T kin = chain_velocities(n_, m_, M_, W_.data(), u_.data());
+      const T kin = chain_kinetic(n_, m_, inv_M_, W_.data(), pw_.data());
       rate_inv = kin + y0[lay_.binding()] + dy[lay_.binding()];
     } else {
       rate_inv = y0[lay_.omega()] + dy[lay_.omega()];
@@ -233,8 +235,8 @@ class RegularizedLeapfrog {
     }
     if (reg_ == ChainRegularization::time_transformed) {
       // Velocities before the kick (the drift just before left W_ at the current W).
-      chain_velocities(n_, m_, M_, W_.data(), u_.data());
-      const T half = dtk / T(2);
+      chain_velocities_inv(n_, m_, inv_M_, W_.data(), u_.data());
+      const T half = scale_pow2(dtk, 0.5);
       T p = T(0);
       for (int b = 0; b < n_; ++b) {
         T s = T(0);
@@ -325,13 +327,13 @@ class RegularizedLeapfrog {
 
   int n_ = 0, nsub_ = 1;
   const T* m_ = nullptr;
-  T M_ = T(0);
+  T M_ = T(0), inv_M_ = T(0);
   ChainRegularization reg_ = ChainRegularization::logarithmic;
   ChainLayout lay_;
   ContactProbe probe_;
   int contact_sample_ = -1, contact_i_ = -1, contact_j_ = -1;
   double contact_fraction_ = 0.0;
-  std::vector<T> X_, W_, q_, a_, A_, u_;
+  std::vector<T> X_, W_, q_, a_, A_, u_, pw_;
   // Post-Newtonian state (empty when Newtonian): auxiliary velocity links and centre-of-mass
   // velocity, and scratch.
   const PostNewtonianTerms<T>* pn_ = nullptr;

@@ -240,6 +240,20 @@ inline dd dd_div(const dd& x, const dd& y) noexcept {
 #endif
 }
 
+// dd + dd for operands of the same sign (or zero): JMP 2017 Alg. 5 (SloppyDWPlusDW), the low
+// parts added in plain double, 11 flops against Alg. 6's 20. Its relative error is unbounded under
+// cancellation, but for same-sign operands it stays below 3u^2 [memory: JMP 2017, the remark after
+// Alg. 5]; cpp/tests/test_scalar.cpp measures it against the 8u^2 of the other operations. Used
+// for sums of positive terms (squared distances, kinetic energy, the force function).
+inline dd dd_add_same_sign(const dd& x, const dd& y) noexcept {
+    double sl;
+    const double sh = two_sum(x.hi, y.hi, sl);
+    const double v = sl + (x.lo + y.lo);
+    double zl;
+    const double zh = fast_two_sum(sh, v, zl);
+    return dd::raw(zh, zl);
+}
+
 }  // namespace detail
 
 // ---- arithmetic operators ------------------------------------------------------------------
@@ -344,6 +358,42 @@ inline dd sqrt(const dd& a) noexcept {
     const double t = rho / (2.0 * s);
     double zl;
     const double zh = fast_two_sum(s, t, zl);
+    return dd::raw(zh, zl);
+}
+
+// 1/sqrt(a) for inverse distances in force loops (r^-3 = rsqrt(r^2)^3: one square root and one
+// division in double instead of a dd square root and a dd division). Seed y = RN(1/RN(sqrt(a.hi))),
+// within ~2.5u of 1/sqrt(a) (a.lo included); residual e = 1 - a y^2 (|e| <= ~5u) as an exact pair:
+// y^2 = p + pl and a.hi p = h + hl by TwoProd, 1 - h exact (Sterbenz: h is within a few ulps of 1),
+// the other parts of a y^2 (order u) in plain double (rounding ~u^2/2 absolute; a.lo * pl, order
+// u^3, dropped), then TwoSum. Correction to second order, y (e/2 + 3e^2/8) (the first-order step
+// alone leaves 3e^2/8, up to ~9u^2 for |e| = 5u, and measured 6.4u^2), with its leading part
+// y eh / 2 exact by TwoProd, so the result is not limited by rounding a u-sized correction to
+// one double. Remaining: e^3 terms (~u^3), the residual's rounding (<= ~0.4u^2), the final
+// additions (<= ~u^2): <= ~1.5u^2 on paper; 8u^2 required, measured by cpp/tests/test_scalar.cpp.
+// No fma outside two_prod, so FMA and no-FMA builds give the same bits. Full accuracy for
+// 2^-900 <~ a <~ 2^900 (the TwoProd errors of y^2 must stay normal).
+inline dd rsqrt(const dd& a) noexcept {
+    if (!(a.hi > 0.0 && a.hi < std::numeric_limits<double>::infinity())) {
+        if (a.hi == 0.0) return dd(std::copysign(std::numeric_limits<double>::infinity(), a.hi));
+        if (a.hi > 0.0) return dd(0.0);  // 1/sqrt(inf)
+        return dd(std::numeric_limits<double>::quiet_NaN());
+    }
+    const double y = 1.0 / std::sqrt(a.hi);
+    double pl, hl;
+    const double p = two_prod(y, y, pl);
+    const double h = two_prod(a.hi, p, hl);
+    const double rest = hl + (a.hi * pl + a.lo * p);
+    double el;
+    const double eh = two_sum(1.0 - h, -rest, el);  // e = eh + el
+    const double hy = 0.5 * y;                       // exact
+    double cl;
+    const double ch = two_prod(hy, eh, cl);          // y eh / 2 exactly
+    const double c2 = cl + hy * (el + 0.75 * (eh * eh));
+    double vl;
+    const double vh = fast_two_sum(y, ch, vl);
+    double zl;
+    const double zh = fast_two_sum(vh, vl + c2, zl);
     return dd::raw(zh, zl);
 }
 

@@ -5,8 +5,10 @@
 // arithmetic" (ARITH-15):
 //   renormalization   their two-pass scheme: a bottom-up FastTwoSum sweep that makes the
 //                     terms non-overlapping, then a top-down sweep that drops zero errors.
-//   qd + qd           the accurate ("IEEE") addition: merge the eight limbs by decreasing
-//                     magnitude and feed them through a two-double accumulator
+//   qd + qd           when the leading limbs do not cancel (the usual case), the limbs are added
+//                     order by order (their "sloppy" scheme, accurate under that condition, see
+//                     qd_add_nocancel); otherwise the accurate ("IEEE") addition: merge the eight
+//                     limbs by decreasing magnitude and feed them through a two-double accumulator
 //                     (Double-Accumulate), emitting a limb whenever the accumulator holds
 //                     three non-zero parts. Relative error stays below 2^-212 in the tests
 //                     even under deep cancellation, which the cheap "sloppy" addition does not
@@ -16,10 +18,12 @@
 //   qd / double       long division: five quotient digits q_k = r_0 / b, each followed by the
 //                     remainder update r -= q_k * b (accurate addition, so the cancellation in
 //                     the remainder is handled exactly enough).
-//   qd / qd, sqrt,    Newton iterations with precision doubling (Karp & Markstein 1997): start
-//   rsqrt             from the double-double result, correct with the residual computed in qd.
+//   qd / qd, sqrt,    ONE Newton correction from the double-double result (Karp & Markstein
+//   rsqrt             1997), the residual computed once in qd, the correction in dd: ~2x faster
+//                     than two corrections (measured: qd / qd 347 -> 146 ns, sqrt 374 -> 180 ns
+//                     on this 2-core machine under load), within ~15 units of 2^-212 measured.
 //                     (The paper's five-digit long division for qd / qd is kept as
-//                     detail::qd_div_long; it is as accurate but ~1.4x slower.)
+//                     detail::qd_div_long, for reference and the tests.)
 // Mixed forms qd+double and qd*double use the same ideas with the missing limbs removed.
 //
 // Invariant ("normalized"): |x[i+1]| <= ulp(x[i]) and zero limbs only trail. This is what the
@@ -33,8 +37,9 @@
 // values. Full relative accuracy needs the limbs to stay normal: |value| >~ 2^-860 and below
 // overflow. Unlike dd, the qd code has data-dependent branches (in the accumulator of the
 // addition); merging and renormalization are written with selects.
-// Measured maxima (exact reference, 400k operands per op): + 0.25, * 2.9, / 2.8, sqrt 2.5,
-// rsqrt 2.3 units of 2^-212 (~1e-64 relative); the tests require 1e-60.
+// Measured maxima (exact reference, cpp/tests/test_scalar.cpp, 20k operands per op incl. deep
+// cancellation): + 1.0, * 2.3, / 10.4, sqrt 7.5, rsqrt 5.4 units of 2^-212 (2^-212 ~ 1.5e-64
+// relative); the tests require 1e-60 (~6600 units).
 #pragma once
 
 #include <cmath>
@@ -102,38 +107,57 @@ inline dd to_dd_impl(const qd& a) noexcept {
 // Hida-Li-Bailey renormalization of five roughly ordered, possibly overlapping terms
 // (c0 largest) into a normalized qd.
 inline qd qd_renormalize(double c0, double c1, double c2, double c3, double c4) noexcept {
-    // Pass 1, bottom-up: after it, t0 = RN(sum) and t1..t4 are the exact leftover errors.
+    // Pass 1, bottom-up: after it, t0 = RN(sum) and t1..t4 are the exact leftover errors. TwoSum
+    // rather than FastTwoSum: exact whatever the order of the terms (a term can be smaller than
+    // the next after cancellation inside one order of magnitude), the same bits where FastTwoSum
+    // was exact, and no slower on the critical path (the sum has the same latency; the error
+    // terms are first needed in pass 2).
     double t1, t2, t3, t4;
-    double s = fast_two_sum(c3, c4, t4);
-    s = fast_two_sum(c2, s, t3);
-    s = fast_two_sum(c1, s, t2);
-    const double t0 = fast_two_sum(c0, s, t1);
+    double s = two_sum(c3, c4, t4);
+    s = two_sum(c2, s, t3);
+    s = two_sum(c1, s, t2);
+    const double t0 = two_sum(c0, s, t1);
 
     // Pass 2, top-down: accumulate while the error is zero (the term was absorbed), emit a limb
-    // and continue with the error otherwise. This closes the gaps that zeros would leave.
-    // Written with selects on registers rather than an indexed array and branches: which slot
-    // receives a limb is data-dependent, and both forms give the same result.
-    double o0 = 0.0, o1 = 0.0, o2 = 0.0, o3 = 0.0;
-    int k = 0;
-    s = t0;
-    const double t[4] = {t1, t2, t3, t4};
-    for (int i = 0; i < 4; ++i) {
-        double e;
-        const double sum = fast_two_sum(s, t[i], e);
-        const bool emit = e != 0.0 && k < 4;  // past four limbs the rest is below half an ulp
-        o0 = (emit && k == 0) ? sum : o0;
-        o1 = (emit && k == 1) ? sum : o1;
-        o2 = (emit && k == 2) ? sum : o2;
-        o3 = (emit && k == 3) ? sum : o3;
-        s = emit ? e : sum;
-        k += emit ? 1 : 0;
+    // and continue with the error otherwise. This closes the gaps that zeros would leave. Written
+    // with branches (Hida, Li & Bailey's nesting): an error is zero only for exactly representable
+    // partial sums, so for general data every branch goes the same way and is predicted; the
+    // form with selects on every step (same bits) put the selects on the critical path and
+    // measured ~15% slower per qd operation.
+    double s0, s1 = 0.0, s2 = 0.0, s3 = 0.0;
+    s0 = fast_two_sum(t0, t1, s1);
+    if (s1 != 0.0) {
+        s1 = fast_two_sum(s1, t2, s2);
+        if (s2 != 0.0) {
+            s2 = fast_two_sum(s2, t3, s3);
+            if (s3 != 0.0)
+                s3 += t4;  // past four limbs the rest is below half an ulp
+            else
+                s2 = fast_two_sum(s2, t4, s3);
+        } else {
+            s1 = fast_two_sum(s1, t3, s2);
+            if (s2 != 0.0)
+                s2 = fast_two_sum(s2, t4, s3);
+            else
+                s1 = fast_two_sum(s1, t4, s2);
+        }
+    } else {
+        s0 = fast_two_sum(s0, t2, s1);
+        if (s1 != 0.0) {
+            s1 = fast_two_sum(s1, t3, s2);
+            if (s2 != 0.0)
+                s2 = fast_two_sum(s2, t4, s3);
+            else
+                s1 = fast_two_sum(s1, t4, s2);
+        } else {
+            s0 = fast_two_sum(s0, t3, s1);
+            if (s1 != 0.0)
+                s1 = fast_two_sum(s1, t4, s2);
+            else
+                s0 = fast_two_sum(s0, t4, s1);
+        }
     }
-    // The running value s is the last limb, unless four limbs were already emitted.
-    o0 = k == 0 ? s : o0;
-    o1 = k == 1 ? s : o1;
-    o2 = k == 2 ? s : o2;
-    o3 = k == 3 ? s : o3;
-    return qd::raw(o0, o1, o2, o3);
+    return qd::raw(s0, s1, s2, s3);
 }
 
 // One Double-Accumulate step (Hida, Li & Bailey 2001): add t into the two-double accumulator
@@ -168,8 +192,37 @@ inline void qd_order(double& x, double& y) noexcept {
     y = lo;
 }
 
-// Accurate ("IEEE") qd + qd addition of Hida, Li & Bailey 2001.
+// qd + qd when the leading limbs do not cancel (|RN(a0 + b0)| >= max(|a0|, |b0|) / 2, so that
+// |a| + |b| <= ~3 |a + b|): the limbs are added order by order (Hida, Li & Bailey's "sloppy"
+// scheme): TwoSum of a_i + b_i (exact), the order-1 and order-2 sums with their errors by TwoSum
+// (exact), the order-3 terms (and the order-4 error) in plain double, whose rounding is
+// ~4 * 2^-212 (|a| + |b|), then renormalized. With the condition: <= ~13 units of 2^-212 relative
+// on paper, measured in cpp/tests/test_scalar.cpp. The adds of the four orders are independent,
+// so this is much shorter than the merge-and-accumulate path, which stays for cancellation.
+inline qd qd_add_nocancel(const qd& a, const qd& b, double s0, double e0) noexcept {
+    double e1, e2, e3;
+    const double s1 = two_sum(a.x[1], b.x[1], e1);
+    const double s2 = two_sum(a.x[2], b.x[2], e2);
+    const double s3 = two_sum(a.x[3], b.x[3], e3);
+    double f1;
+    const double x1 = two_sum(s1, e0, f1);  // order 1, error order 2
+    double g1, g2;
+    double x2 = two_sum(s2, e1, g1);  // order 2
+    x2 = two_sum(x2, f1, g2);
+    const double x3 = s3 + (e2 + (g1 + g2));  // order 3
+    return qd_renormalize(s0, x1, x2, x3, e3);
+}
+
+// Accurate ("IEEE") qd + qd addition of Hida, Li & Bailey 2001, taken when the leading limbs
+// cancel (see qd_add_nocancel for the other case; the test is one TwoSum that the short path
+// reuses).
 inline qd qd_add(const qd& a, const qd& b) noexcept {
+    {
+        double e0;
+        const double s0 = two_sum(a.x[0], b.x[0], e0);
+        if (std::fabs(s0) >= 0.5 * std::fmax(std::fabs(a.x[0]), std::fabs(b.x[0])))
+            return qd_add_nocancel(a, b, s0, e0);
+    }
     // Merge by decreasing magnitude; each operand's limbs are already in that order. Batcher's
     // odd-even merge network (9 compare-exchanges, depth 3; checked exhaustively by the 0-1
     // principle) does this without branches: the merge order is data-dependent, and as
@@ -291,17 +344,53 @@ inline qd qd_div_long(const qd& a, const qd& b) noexcept {
     return qd_renormalize(q0, q1, q2, q3, q4);
 }
 
-// qd / qd by Newton correction with precision doubling (Karp & Markstein 1997, "High-precision
-// division and square root", ACM TOMS 23(4)): q0 = a/b in double-double (~104 bits), then
-// q1 = q0 + (a - q0*b)/b, where only the remainder needs full qd precision and the correction
-// (~2^-104 relative) is computed in dd; a last correction in double removes q1's ~2^-208 error.
+// qd * dd: qd_mul with the missing limbs of the dd removed (x * (y0 + y1)): orders 0-2 exactly,
+// order 3 and the order-4 term in plain double, then renormalized. Same truncation as qd_mul.
+inline qd qd_mul_dd(const qd& a, const dd& b) noexcept {
+    const double* x = a.x;
+    double e00, e01, e10, e02, e11;
+    const double p00 = two_prod(x[0], b.hi, e00);
+    const double p01 = two_prod(x[1], b.hi, e01);
+    const double p10 = two_prod(x[0], b.lo, e10);
+    const double p02 = two_prod(x[2], b.hi, e02);
+    const double p11 = two_prod(x[1], b.lo, e11);
+    const double o3 = x[3] * b.hi + x[2] * b.lo;
+    const double o4 = x[3] * b.lo;
+    double c1, c2;
+    double s1 = two_sum(p01, p10, c1);
+    s1 = two_sum(s1, e00, c2);
+    double d1, d2, d3, d4, d5;
+    double s2 = two_sum(p02, p11, d1);
+    s2 = two_sum(s2, e01, d2);
+    s2 = two_sum(s2, e10, d3);
+    s2 = two_sum(s2, c1, d4);
+    s2 = two_sum(s2, c2, d5);
+    const double s3 = ((o3 + (e02 + e11)) + ((d1 + d2) + (d3 + d4) + d5)) + o4;
+    return qd_renormalize(p00, s1, s2, s3, 0.0);
+}
+
+// x + c as a qd, for a dd value x and a dd correction |c| <~ 2^-90 |x| (a Newton step's): the sum
+// is formed exactly (TwoSum of the overlapping middle limbs; should x.lo and c.hi cancel, their
+// sum is exact and no smaller than c.lo), then renormalized.
+inline qd qd_join_dd(const dd& x, const dd& c) noexcept {
+    double e1, e2;
+    const double s1 = two_sum(x.lo, c.hi, e1);
+    const double s2 = two_sum(e1, c.lo, e2);
+    return qd_renormalize(x.hi, s1, s2, e2, 0.0);
+}
+
+// qd / qd: ONE Newton correction from a double-double seed, the residual computed once (Karp &
+// Markstein 1997, "High-precision division and square root", ACM TOMS 23(4)). q0 = a/b in dd
+// (relative error d0 <= 9.8u^2 for the division plus u^2 for rounding a and b to dd: <= ~12u^2,
+// u = 2^-53); r = a - q0 b in qd (the product's truncation and the sum's rounding: a few units of
+// 2^-212 |a|); the correction c = r/b in dd (relative error <= ~12u^2 of |c| <= 12u^2 |a/b|); the
+// result q0 + c, exact up to the final renormalization. Bound on paper ~150 units of 2^-212
+// (~4e-62 relative, against the 1e-60 the tests require); measured in cpp/tests/test_scalar.cpp.
 inline qd qd_div(const qd& a, const qd& b) noexcept {
     const dd bd = to_dd_impl(b);
-    const qd q0(dd_div(to_dd_impl(a), bd));
-    const qd r0 = qd_add(a, -qd_mul(q0, b));           // exact up to ~2^-212 |a|
-    const qd q1 = qd_add(q0, qd(dd_div(to_dd_impl(r0), bd)));
-    const qd r1 = qd_add(a, -qd_mul(q1, b));
-    return qd_add_fp(q1, r1.x[0] / b.x[0]);
+    const dd q0 = dd_div(to_dd_impl(a), bd);
+    const qd r = qd_add(a, -qd_mul_dd(b, q0));
+    return qd_join_dd(q0, dd_div(to_dd_impl(r), bd));
 }
 
 // qd / double: same long division; q_k * b is exact as a TwoProd pair, so each remainder update
@@ -464,10 +553,12 @@ inline qd ldexp(const qd& a, int n) noexcept {
                    std::ldexp(a.x[3], n));
 }
 
-// sqrt with precision doubling (Karp & Markstein 1997): y0 = sqrt(a) and x0 = 1/y0 in
-// double-double (~104 bits), then Heron/Newton corrections y <- y + x0*(a - y^2)/2. The first
-// correction needs the residual a - y^2 (strong cancellation) in full qd but the correction itself
-// only in dd; it leaves ~2^-207 error, which a second, double-precision correction removes.
+// sqrt: ONE Newton (Heron) correction from the double-double root, the residual computed once
+// (Karp & Markstein 1997): y0 = sqrt(a) in dd (relative error d <= ~3.5u^2 measured, see
+// double_double.hpp, plus rounding a to dd), r = a - y0^2 in qd (y0^2 by the truncated qd * dd
+// product), y = y0 + r / (2 y0) with the correction in dd. The exact step leaves d^2/2 (~6 units of
+// 2^-212); the dd correction adds ~12u^2 of |r/(2 y0)| <= d |y| (~40 units). Measured in
+// cpp/tests/test_scalar.cpp against the 1e-60 required.
 inline qd sqrt(const qd& a) noexcept {
     const double a0 = a.x[0];
     if (!(a0 > 0.0 && a0 < std::numeric_limits<double>::infinity())) {
@@ -475,18 +566,17 @@ inline qd sqrt(const qd& a) noexcept {
         return qd(std::numeric_limits<double>::quiet_NaN());
     }
     const dd y0 = sqrt(detail::to_dd_impl(a));
-    const dd x0 = detail::dd_div(dd(1.0), y0);
-    qd y(y0);
-    const qd r0 = detail::qd_add(a, -detail::qd_mul(y, y));
-    y = detail::qd_add(y, qd(ldexp(detail::dd_mul(x0, detail::to_dd_impl(r0)), -1)));
-    const qd r1 = detail::qd_add(a, -detail::qd_mul(y, y));
-    return detail::qd_add_fp(y, 0.5 * (x0.hi * r1.x[0]));
+    const qd r = detail::qd_add(a, -detail::qd_mul_dd(qd(y0), y0));
+    const dd twice = dd::raw(2.0 * y0.hi, 2.0 * y0.lo);  // exact
+    return detail::qd_join_dd(y0, detail::dd_div(detail::to_dd_impl(r), twice));
 }
 
-// 1/sqrt(a), cheaper than 1 / sqrt(a) (one Newton iteration chain instead of a square root and
-// a division), for inverse distances in force loops. x0 = 1/sqrt(a) in double-double, then
-// Newton's x <- x + x*(1 - a*x^2)/2 (Karp & Markstein 1997): the residual in qd, the first
-// correction in dd (leaving ~1.5*(2^-104)^2 relative error), a second one in double.
+// 1/sqrt(a), for inverse distances in force loops (r^-3 = rsqrt(r^2)^3). ONE Newton correction
+// x0 + x0 e / 2 from the dd seed x0 = rsqrt(a) (double_double.hpp: d <= ~5u^2, plus rounding a to
+// dd), with the residual e = 1 - a x0^2 computed once in qd (x0^2 by the truncated qd * dd
+// product, then a qd product), the correction in dd. The exact step leaves 3d^2/2 (~45 units of
+// 2^-212 on paper); the dd correction adds ~6u^2 of |x0 e / 2| <= d |x| (~35 units). Measured in
+// cpp/tests/test_scalar.cpp against the 1e-60 required.
 inline qd rsqrt(const qd& a) noexcept {
     const double a0 = a.x[0];
     if (!(a0 > 0.0 && a0 < std::numeric_limits<double>::infinity())) {
@@ -494,12 +584,10 @@ inline qd rsqrt(const qd& a) noexcept {
         if (a0 > 0.0) return qd(0.0);  // 1/sqrt(inf)
         return qd(std::numeric_limits<double>::quiet_NaN());
     }
-    const dd x0 = detail::dd_div(dd(1.0), sqrt(detail::to_dd_impl(a)));
-    qd x(x0);
-    const qd e0 = detail::qd_add_fp(-detail::qd_mul(a, detail::qd_mul(x, x)), 1.0);
-    x = detail::qd_add(x, qd(ldexp(detail::dd_mul(x0, detail::to_dd_impl(e0)), -1)));
-    const qd e1 = detail::qd_add_fp(-detail::qd_mul(a, detail::qd_mul(x, x)), 1.0);
-    return detail::qd_add_fp(x, 0.5 * (x0.hi * e1.x[0]));
+    const dd x0 = rsqrt(detail::to_dd_impl(a));
+    const qd e = detail::qd_add_fp(-detail::qd_mul(a, detail::qd_mul_dd(qd(x0), x0)), 1.0);
+    const dd c = detail::dd_mul(x0, detail::to_dd_impl(e));
+    return detail::qd_join_dd(x0, dd::raw(0.5 * c.hi, 0.5 * c.lo));  // halving exact
 }
 
 }  // namespace loschmidt
