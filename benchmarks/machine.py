@@ -34,23 +34,27 @@ KERNELS = HERE / "kernels"
 
 #: Floating-point instructions per operation (see the module docstring).
 OPS = {
-    "f64": {"add": 1, "mul": 1, "div": 1, "sqrt": 1},
+    "f64": {"add": 1, "mul": 1, "div": 1, "sqrt": 1, "rsqrt": 2},
     # dd: TwoSum 6, FastTwoSum 3, TwoProd (fma) 2.  add = 2 TwoSum + 2 FastTwoSum + 2 = 20;
     # mul = TwoProd + mul + 2 fma + add + FastTwoSum = 9; div (Alg. 18) = div + fma + mul + FastTwoSum
     # + dd*fp (6) + dd+fp (10) + dd*dd (9) = 31; sqrt = sqrt + fma + add + mul + div + FastTwoSum = 8.
-    "dd": {"add": 20, "mul": 9, "div": 31, "sqrt": 8},
-    # qd [estimate]: add = FastTwoSum + 6 accumulate steps (2 TwoSum each) + renormalization (8
-    # FastTwoSum) = 99; mul = 6 TwoProd + 12 plain order-3/4 terms + 8 TwoSum + 11 adds + renorm.
-    # = 107; div = 2 dd divisions + 2 qd products + 3 qd adds + qd+fp (48) + conversions = 637;
-    # sqrt = dd sqrt + dd div + dd mul + 2 qd products + 3 qd adds + qd+fp + conversions = 621.
-    "qd": {"add": 99, "mul": 107, "div": 637, "sqrt": 621},
+    # rsqrt = sqrt + div + 3 TwoProd + TwoSum + 2 FastTwoSum + 9 plain = 31 (double_double.hpp).
+    "dd": {"add": 20, "mul": 9, "div": 31, "sqrt": 8, "rsqrt": 31},
+    # qd [estimate]: add = the no-cancellation path (7 TwoSum + 3 adds + renormalization: 4 TwoSum
+    # and up to 4 FastTwoSum) = 81 (the merge path under cancellation: ~120); mul = 6 TwoProd + 12
+    # plain order-3/4 terms + 8 TwoSum + 11 adds + renorm. = 107; div (one Newton correction) = 2 dd
+    # divisions + qd*dd product + qd add + conversions + join = 310; sqrt = dd sqrt + qd*dd product +
+    # qd add + dd div + conversions + join = 280; rsqrt = dd rsqrt + qd*dd and qd products + qd+fp +
+    # dd mul + join = 330.
+    "qd": {"add": 81, "mul": 107, "div": 310, "sqrt": 280, "rsqrt": 330},
 }
 
 
 def ops_per_pair(precision: str, dims: int = 3) -> int:
     """One pair term of the engine's force kernel (nbody/forces.hpp) in ``dims`` dimensions:
     D subtractions, D products and D - 1 sums for r^2, one sqrt, r^2 * r, 1 / (r^2 r), m_j q and
-    m_i q, and for each component two products and two accumulations."""
+    m_i q, and for each component two products and two accumulations. (The chain method's kernel,
+    chain_coordinates.hpp, uses one inverse square root instead: benchmarks/speed.py counts it.)"""
     o = OPS[precision]
     adds = dims + (dims - 1) + 2 * dims
     muls = dims + 1 + 2 + 2 * dims

@@ -1,7 +1,6 @@
 // Newtonian gravitational accelerations, G = 1, no softening, in the working precision T.
 // Pairwise: each pair's separation, distance and 1/r^3 are computed once and applied to both bodies
-// (Newton's third law), so the cost is n(n-1)/2 pair terms, one inverse square root each (1/r^3 =
-// rsqrt(r^2)^3: no square root and no division in the working precision).
+// (Newton's third law), so the cost is n(n-1)/2 pair terms, one sqrt and one division each.
 // No allocation: the caller owns every array.
 //
 // The kernels are written for D spatial dimensions (D = 3: the public interface; D = 2: the
@@ -34,10 +33,10 @@ inline void accelerations_in(int n, const T* m, const T* x, T* a) {
     for (int j = i + 1; j < n; ++j) {
       T dx[D];
       for (int c = 0; c < D; ++c) dx[c] = x[D * j + c] - xi[c];
-      T r2 = add_same_sign(dx[0] * dx[0], dx[1] * dx[1]);
-      if constexpr (D == 3) r2 = add_same_sign(r2, dx[2] * dx[2]);
-      const T inv_r = rsqrt(r2);
-      const T q = (inv_r * inv_r) * inv_r;  // 1 / r^3 from one inverse square root
+      T r2 = dx[0] * dx[0] + dx[1] * dx[1];
+      if constexpr (D == 3) r2 = r2 + dx[2] * dx[2];
+      const T r = sqrt(r2);
+      const T q = T(1) / (r2 * r);  // 1 / r^3
       const T qj = m[j] * q;
       const T qi = mi * q;
       for (int c = 0; c < D; ++c) {
@@ -76,13 +75,14 @@ inline void accelerations_in(int n, const T* m, const T* x, T* a, PairWorkspace<
     for (int j = i + 1; j < n; ++j, ++p) {
       T* dp = d + 3 * p;
       for (int c = 0; c < D; ++c) dp[c] = x[D * j + c] - x[D * i + c];
-      T r2 = add_same_sign(dp[0] * dp[0], dp[1] * dp[1]);
-      if constexpr (D == 3) r2 = add_same_sign(r2, dp[2] * dp[2]);
+      T r2 = dp[0] * dp[0] + dp[1] * dp[1];
+      if constexpr (D == 3) r2 = r2 + dp[2] * dp[2];
       q[p] = r2;
     }
   for (int k = 0; k < p; ++k) {
-    const T inv_r = rsqrt(q[k]);
-    q[k] = (inv_r * inv_r) * inv_r;  // 1 / r^3 from one inverse square root
+    const T r2 = q[k];
+    const T r = sqrt(r2);
+    q[k] = T(1) / (r2 * r);
   }
   for (int k = 0; k < D * n; ++k) a[k] = T(0);
   p = 0;
