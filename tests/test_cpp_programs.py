@@ -28,7 +28,7 @@ SOURCES = ROOT / "cpp" / "tests"
 INCLUDE = ROOT / "cpp" / "include"
 
 # The module's numerical flags (CMakeLists.txt); -O1: see the module docstring.
-FLAGS = ["-std=c++17", "-O1", "-Wall", "-Wextra", "-ffp-contract=off", "-fno-fast-math"]
+FLAGS = ["-std=c++17", "-O1", "-Wall", "-Wextra", "-ffp-contract=off", "-fno-fast-math", "-pthread"]
 
 # program -> the line it prints when every check passed
 PASS_LINES = {

@@ -9,10 +9,12 @@
 //   g++ -std=c++17 -O2 -Wall -Wextra -ffp-contract=off -mfma -I cpp/include cpp/tests/test_capabilities.cpp
 #include <cmath>
 #include <cstdio>
+#include <initializer_list>
 #include <stdexcept>
 #include <string>
 #include <vector>
 
+#include <loschmidt/batch.hpp>
 #include <loschmidt/methods/dispatch.hpp>
 #include <loschmidt/nbody/diagnostics.hpp>
 #include <loschmidt/scalar/scalar.hpp>
@@ -244,6 +246,46 @@ void test_pythagorean_escape(Method method, double rtol, const char* name) {
   check(dbl(t) > 60.0 && dbl(t) < 200.0, std::string(name) + ": after the last close encounter");
 }
 
+// The batch driver with a stop condition (what a lifetime sweep needs): each system ends where
+// its single run ends, bit for bit, with the same stop record; a bound system runs to t_end.
+template <class T>
+void test_batch_stop(Method method, int threads) {
+  const State<T> a = escaping_triple<T>();
+  State<T> b = a;
+  b.v[8] = T(0);  // the third body at rest at r = 5: falls back, no escape by t_end = 3
+  BatchInput<T> in;
+  in.count = 2;
+  in.n = 3;
+  for (const State<T>* s : std::initializer_list<const State<T>*>{&a, &b}) {
+    in.m.insert(in.m.end(), s->m.begin(), s->m.end());
+    in.x.insert(in.x.end(), s->x.begin(), s->x.end());
+    in.v.insert(in.v.end(), s->v.begin(), s->v.end());
+  }
+  in.t_end = {T(3)};
+  BatchSettings set;
+  set.options.stop = StopCondition::escape;
+  set.options.check_every = 1;
+  set.options.distance_factor = 7.0;  // escape beyond 7 a (r0 = 5): met near t = 1.5, before t_end = 3
+  set.threads = threads;
+  const BatchOutput<T> out = run_batch<T>(BatchTask::integrate, integrator<T>(method), in, set);
+  for (int i = 0; i < 2; ++i) {
+    State<T> s = i == 0 ? a : b;
+    T t = T(0);
+    const Stats st = integrate(method, s, t, T(3), set.options);
+    bool same = out.t[static_cast<std::size_t>(i)] == t && out.status[static_cast<std::size_t>(i)] == static_cast<int>(st.status);
+    for (std::size_t k = 0; k < 9; ++k)
+      same = same && out.x[9 * static_cast<std::size_t>(i) + k] == s.x[k] && out.v[9 * static_cast<std::size_t>(i) + k] == s.v[k];
+    check(same, std::string("batch stop run ") + std::to_string(i) + " equals the single run bit for bit");
+    check(out.stopped_by[static_cast<std::size_t>(i)] == static_cast<int>(st.stopped_by) &&
+              out.stop_i[static_cast<std::size_t>(i)] == st.stop_i,
+          "batch records the stop condition and body");
+  }
+  check(out.status[0] == static_cast<int>(Status::stop_condition) && out.stop_i[0] == 2, "batch: system 0 escapes");
+  check(out.status[1] == static_cast<int>(Status::success) && out.stop_i[1] == -1, "batch: system 1 runs to t_end");
+  std::printf("  batch (%s, %d threads) with stop: t = %.4f (escape), %.1f (bound)\n", method_name(method), threads,
+              dbl(out.t[0]), dbl(out.t[1]));
+}
+
 // ---------------------------------------------------------------- dispatch and argument check
 template <class T>
 void test_dispatch_contract() {
@@ -313,6 +355,8 @@ int main() {
   test_stop_on_escape<double>(Method::gbs, 0, "gbs, Newtonian, f64");
   test_stop_on_escape<double>(Method::chain, 0, "chain, Newtonian, f64");
   test_stop_on_escape<dd>(Method::chain, pn_1 | pn_2 | pn_25, "chain, 1PN+2PN+2.5PN, dd");
+  test_batch_stop<double>(Method::chain, 2);
+  test_batch_stop<dd>(Method::gbs, 1);
   test_pythagorean_escape<double>(Method::gbs, 1e-13, "pythagorean, gbs, f64");
   test_pythagorean_escape<double>(Method::chain, 1e-13, "pythagorean, chain, f64");
   if (failures) {
