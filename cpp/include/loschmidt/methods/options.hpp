@@ -65,7 +65,10 @@ struct Options {
   // Cartesian coordinates, where in dd or qd the steps shrink for millions of steps while staying
   // above the first floor (a head-on collision from rest in dd: 10 million steps in 20 s without
   // reaching it). 2^-50 (about 1e-15) is far below the step of any close encounter the gbs method
-  // can integrate usefully (use the chain method there); 0 switches the test off.
+  // can integrate usefully (use the chain method there); 0 switches the test off. The chain
+  // method, whose steps are fictitious-time steps, applies it to the physical time instead: after
+  // 1000 accepted steps, a mean advance of t per step below min_step_ratio times the requested
+  // span ends the run (RunBudget::crawling_in_time).
   double min_step_ratio = 0x1p-50;
   // Called every few milliseconds (at a step boundary); returning true stops the run with
   // Status::interrupted. Empty means never called.
