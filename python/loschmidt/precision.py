@@ -37,6 +37,7 @@ __all__ = [
     "convert",
     "add",
     "sub",
+    "default_tolerance",
     "mul",
     "div",
     "sqrt",
@@ -51,11 +52,10 @@ PRECISIONS = ("f64", "f64c", "dd", "qd")
 _LIMBS = {"f64": 1, "f64c": 1, "dd": 2, "qd": 4}
 # Unit roundoff of each precision (METHODS.md section 1) and the decimal digits it carries.
 _EPSILON = {"f64": 2.0**-53, "f64c": 2.0**-53, "dd": 2.0**-106, "qd": 2.0**-212}
+_DEFAULT_TOLERANCE = {"f64": 1e-13, "f64c": 1e-14, "dd": 1e-28, "qd": 1e-56}
 _DIGITS = {"f64": 15, "f64c": 15, "dd": 31, "qd": 62}
 # Digits that make to_string -> to_limbs a round trip for values whose limbs are contiguous.
 _ROUNDTRIP_DIGITS = {"f64": 17, "f64c": 17, "dd": 34, "qd": 66}
-# The C++ kernels: f64c computes in plain double.
-_KERNEL = {"f64": "f64", "f64c": "f64", "dd": "dd", "qd": "qd"}
 
 
 def check_precision(precision: Any, name: str = "precision") -> str:
@@ -129,6 +129,30 @@ def epsilon(precision: str) -> float:
     True
     """
     return _EPSILON[check_precision(precision)]
+
+
+def default_tolerance(precision: str) -> float:
+    """Default relative tolerance of the integrations in a working precision.
+
+    A few hundred units of round-off, so the truncation error of the extrapolation sits just
+    above the precision's floor.
+
+    Parameters
+    ----------
+    precision : {"f64", "f64c", "dd", "qd"}
+        A working precision.
+
+    Returns
+    -------
+    float
+
+    Examples
+    --------
+    >>> from loschmidt import precision
+    >>> precision.default_tolerance("dd")
+    1e-28
+    """
+    return _DEFAULT_TOLERANCE[check_precision(precision)]
 
 
 def digits(precision: str) -> int:
@@ -541,12 +565,6 @@ def convert(limbs: Any, precision: str) -> np.ndarray:
 # Element-wise arithmetic on limb arrays through the C++ kernels
 
 
-def _kernel(precision: str, kind: str):
-    from . import _core
-
-    return getattr(_core, f"limb_{kind}_{_KERNEL[check_precision(precision)]}")
-
-
 def _operand(x: Any, precision: str, name: str) -> np.ndarray:
     k = limb_count(precision)
     if isinstance(x, np.ndarray) and x.dtype == np.float64 and x.ndim >= 1 and x.shape[-1] == k:
@@ -563,14 +581,19 @@ def _binary(op: int, a: Any, b: Any, precision: str) -> np.ndarray:
     except ValueError:
         raise ValueError(f"a, b: shapes {la.shape[:-1]} and {lb.shape[:-1]} do not broadcast") from None
     shape = la.shape
-    res = _kernel(precision, "binary")(op, np.ascontiguousarray(la).reshape(-1, k), np.ascontiguousarray(lb).reshape(-1, k))
+    from . import engine
+
+    res = engine.limb_binary(op, np.ascontiguousarray(la).reshape(-1, k), np.ascontiguousarray(lb).reshape(-1, k),
+                             check_precision(precision))
     return res.reshape(shape)
 
 
 def _unary(op: int, a: Any, precision: str) -> np.ndarray:
     k = limb_count(precision)
     la = _operand(a, precision, "a")
-    res = _kernel(precision, "unary")(op, np.ascontiguousarray(la).reshape(-1, k))
+    from . import engine
+
+    res = engine.limb_unary(op, np.ascontiguousarray(la).reshape(-1, k), check_precision(precision))
     return res.reshape(la.shape)
 
 

@@ -42,6 +42,7 @@ from typing import Any, Callable, Mapping
 
 import numpy as np
 
+from . import options as _o
 from . import precision as _p
 from .batch import (
     _STATUS_NAMES,
@@ -53,7 +54,7 @@ from .batch import (
     batch_options,
 )
 
-__all__ = ["prepare_lifetime", "run_lifetime", "prepare_amplification", "run_amplification"]
+__all__ = ["LIFETIME_OPTIONS", "prepare_lifetime", "run_lifetime", "prepare_amplification", "run_amplification"]
 
 
 def _cores() -> int:
@@ -73,8 +74,9 @@ def _unknown(options: Mapping[str, Any], keys: tuple) -> None:
 # lifetime
 
 _CHAIN_KEYS = ("regularization", "pn", "c", "merger_factor")
-_LIFETIME_KEYS = ("t_max", "interval", "precision", "method", "tol", "max_steps", "max_wall_time",
-                  "distance_factor") + _CHAIN_KEYS
+#: The integration options (loschmidt.options) task "lifetime" takes.
+LIFETIME_OPTIONS = ("tol", "max_steps", "max_wall_time", "distance_factor") + _CHAIN_KEYS
+_LIFETIME_KEYS = ("t_max", "interval", "precision", "method") + LIFETIME_OPTIONS
 
 
 def prepare_lifetime(**options: Any) -> dict:
@@ -90,8 +92,6 @@ def prepare_lifetime(**options: Any) -> dict:
     dict
         The options, validated and JSON-friendly (hashed into the store's manifest).
     """
-    from .outcome import DEFAULT_DISTANCE_FACTOR, _check_factor
-
     _unknown(options, _LIFETIME_KEYS)
     if "t_max" not in options:
         raise ValueError("t_max: the longest span to follow each member is required")
@@ -106,8 +106,7 @@ def prepare_lifetime(**options: Any) -> dict:
             raise TypeError(f"{name}: expected a number, got bool")
         if _p.exact_fraction(value, name) <= 0:
             raise ValueError(f"{name}: must be positive, got {value!r}")
-    factor = options.get("distance_factor", DEFAULT_DISTANCE_FACTOR)
-    _check_factor(factor)
+    factor = _o.check_distance_factor(options.get("distance_factor", _o.DEFAULT_DISTANCE_FACTOR))
     out = {
         "t_max": opts["t"],
         "interval": str(_p.to_string(_p.to_limbs(interval, opts["precision"], name="interval"), exact=True)),
@@ -185,8 +184,7 @@ def run_lifetime(chunk: Any, options: Mapping[str, Any]) -> dict:
 # ---------------------------------------------------------------------------------------------------
 # amplification
 
-_BATCH_KEYS = ("t", "method", "precision", "tol", "atol", "max_steps", "max_wall_time", "max_order",
-               "initial_step", "radii") + _CHAIN_KEYS
+_BATCH_KEYS = ("t", "method", "precision") + _o.names_for("batch")
 _AMPLIFICATION_KEYS = _BATCH_KEYS + ("perturbation", "body", "axis")
 
 
