@@ -162,7 +162,7 @@ def test_every_refused_option_gets_the_same_message_from_each_entry() -> None:
                     call()
                 assert str(info.value) == expected
                 seen += 1
-    assert seen >= 10
+    assert seen >= 9  # radii (batch), regularization, pn, c, merger_factor (integrate and batch)
 
 
 def test_lyapunov_takes_only_its_options() -> None:
@@ -184,3 +184,33 @@ def test_manifest_form_of_a_plain_definition_is_unchanged() -> None:
     assert o["pn"] == [1, 2] and float(o["c"]) == 100
     assert o["radii"] == [0.1, 0.2, 0.3] and o["regularization"] == "time_transformed" and o["max_steps"] == 7
     assert "merger_factor" not in o and "fixed_step" not in o
+
+
+def test_python_and_engine_defaults_agree() -> None:
+    """Unset options keep the engine's defaults; the Python constants that name them (used by
+    loschmidt.outcome and the docs) must be the same numbers."""
+    from loschmidt import _core
+
+    assert _core.Options().distance_factor == options.DEFAULT_DISTANCE_FACTOR
+    assert _core.ChainOptions().merger_factor == options.DEFAULT_MERGER_FACTOR
+    assert str(_core.Options().check_every) == options.OPTIONS["check_every"].default
+    assert _core.ChainOptions().regularization == options.REGULARIZATIONS.index("logarithmic")
+
+
+def test_precision_table_comes_from_the_engine() -> None:
+    """precision.TABLE is _core.precisions (scalar_traits). The unit roundoff of a p-bit significand
+    is 2^-p (Higham 2002, Accuracy and Stability of Numerical Algorithms, sec. 2.1): 53, 106 and
+    212 bits for double, double-double and quad-double (Hida, Li & Bailey 2001); the operation
+    bounds 2^-103 (dd) and 2^-208 (qd) are those the C++ tests enforce (traits.hpp). Default
+    tolerances: regression values of DEFAULT_TOLERANCE before the table moved to C++."""
+    from loschmidt import _core, precision
+
+    assert [row[0] for row in _core.precisions] == list(precision.PRECISIONS) == ["f64", "f64c", "dd", "qd"]
+    want = {"f64": (1, 53, 2.0**-53, 1e-13), "f64c": (1, 53, 2.0**-53, 1e-14), "dd": (2, 106, 2.0**-103, 1e-28),
+            "qd": (4, 212, 2.0**-208, 1e-56)}
+    for name, (limbs, bits, op, tol) in want.items():
+        p = precision.info(name)
+        assert (p.limbs, p.bits, p.operation_error, p.default_tolerance) == (limbs, bits, op, tol)
+        assert precision.epsilon(name) == p.unit_roundoff == 2.0**-bits
+        assert loschmidt.DEFAULT_TOLERANCE[name] == tol
+    assert precision.info("dd").order_limit == 18 and precision.info("qd").order_limit == 32

@@ -115,8 +115,6 @@ def test_bad_stop_input_is_named() -> None:
     s = ics.pythagorean("dd")
     with pytest.raises(ValueError, match="stop"):
         loschmidt.integrate(s, 1, stop="collision")
-    with pytest.raises(ValueError, match="stop"):
-        loschmidt.integrate(s, 1, stop="escape", method="chain")
     with pytest.raises(ValueError, match="check_every"):
         loschmidt.integrate(s, 1, stop="escape", check_every=0)
     with pytest.raises(TypeError, match="check_every"):
@@ -146,8 +144,6 @@ def test_bad_fixed_step_input_is_named() -> None:
     s = ics.pythagorean("dd")
     with pytest.raises(ValueError, match="fixed_step"):
         loschmidt.integrate(s, 1, fixed_step=-0.1)
-    with pytest.raises(ValueError, match="fixed_step"):
-        loschmidt.integrate(s, 1, fixed_step=0.1, method="chain")
     with pytest.raises(ValueError, match="initial_step"):
         loschmidt.integrate(s, 1, fixed_step=0.1, initial_step=0.1)
     with pytest.raises(ValueError, match="max_order"):

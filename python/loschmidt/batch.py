@@ -329,8 +329,9 @@ def _run(task: str, masses: Any, positions: Any, velocities: Any, t: Any, option
 
 
 def _execute(task: str, ml: np.ndarray, x: np.ndarray, v: np.ndarray, opts: dict, radii: list, threads: int,
-             progress: Callable[[int], Any] | None) -> dict:
-    """The engine's batch kernel on validated limb arrays and ``batch_options`` output."""
+             progress: Callable[[int], Any] | None) -> Any:
+    """The engine's batch kernel on validated limb arrays and ``batch_options`` output: a
+    ``_core.BatchRecord``."""
     prec = opts["precision"]
     t_limbs = _time_limbs(opts["t"], prec, "t")
     return _engine.batch(task, ml, x, v, t_limbs, _settings(opts), radii, threads, progress)
@@ -346,37 +347,41 @@ def _radii_for(radii: Any, count: int, n: int) -> list:
     return r.ravel().tolist()
 
 
-def _fields(task: str, raw: dict) -> dict:
-    code = np.asarray(raw["status"], dtype=np.int64)
+def _fields(task: str, raw: Any) -> dict:
+    """BatchResult's fields from the engine's ``_core.BatchRecord``."""
+    code = np.asarray(raw.status, dtype=np.int64)
     f = {
         "status_code": code,
         "status": _STATUS_NAMES[code],
-        "steps": np.asarray(raw["steps"], dtype=np.int64),
-        "rejected": np.asarray(raw["rejected"], dtype=np.int64),
-        "evaluations": np.asarray(raw["evaluations"], dtype=np.int64),
-        "wall_time": np.asarray(raw["wall_time"], dtype=np.float64),
-        "energy_error": raw["energy_error"],
-        "pair_i": np.asarray(raw["pair_i"], dtype=np.int64),
-        "pair_j": np.asarray(raw["pair_j"], dtype=np.int64),
-        "rechains": np.asarray(raw["rechains"], dtype=np.int64),
+        "steps": np.asarray(raw.steps, dtype=np.int64),
+        "rejected": np.asarray(raw.rejected, dtype=np.int64),
+        "evaluations": np.asarray(raw.evaluations, dtype=np.int64),
+        "wall_time": np.asarray(raw.wall_time, dtype=np.float64),
+        "energy_error": raw.energy_error,
+        "pair_i": np.asarray(raw.pair_i, dtype=np.int64),
+        "pair_j": np.asarray(raw.pair_j, dtype=np.int64),
+        "rechains": np.asarray(raw.rechains, dtype=np.int64),
+        "stopped_by": np.asarray(raw.stopped_by, dtype=np.int64),
+        "stop_i": np.asarray(raw.stop_i, dtype=np.int64),
+        "stop_j": np.asarray(raw.stop_j, dtype=np.int64),
     }
     if task == "integrate":
-        f.update(t=raw["t"], positions=raw["positions"], velocities=raw["velocities"])
+        f.update(t=raw.t, positions=raw.positions, velocities=raw.velocities)
     else:
-        fcode = np.asarray(raw["forward_status"], dtype=np.int64)
+        fcode = np.asarray(raw.forward_status, dtype=np.int64)
         f.update(
             forward_status_code=fcode,
             forward_status=_STATUS_NAMES[fcode],
-            forward_energy_error=raw["forward_energy_error"],
-            forward_t=raw["t"],
-            forward_positions=raw["positions"],
-            forward_velocities=raw["velocities"],
-            returned_t=raw["returned_t"],
-            returned_positions=raw["returned_positions"],
-            returned_velocities=raw["returned_velocities"],
-            delta=raw["delta"],
-            delta_position=raw["delta_position"],
-            delta_velocity=raw["delta_velocity"],
+            forward_energy_error=raw.forward_energy_error,
+            forward_t=raw.t,
+            forward_positions=raw.positions,
+            forward_velocities=raw.velocities,
+            returned_t=raw.returned_t,
+            returned_positions=raw.returned_positions,
+            returned_velocities=raw.returned_velocities,
+            delta=raw.delta,
+            delta_position=raw.delta_position,
+            delta_velocity=raw.delta_velocity,
         )
     return f
 

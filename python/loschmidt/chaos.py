@@ -655,15 +655,15 @@ def lyapunov(
     raw = _engine.lyapunov(s.limbs("masses"), s.limbs("positions"), s.limbs("velocities"), _p.to_limbs(w[0], prec),
                            _p.to_limbs(w[1], prec), t_limbs, outs, settings, ren)
     result = _wrap(s, raw, "gbs", prec, rtol, False)
-    wt = np.stack([_p.to_float(raw["tangent_positions"]), _p.to_float(raw["tangent_velocities"])])
+    wt = np.stack([_p.to_float(raw.tangent_positions), _p.to_float(raw.tangent_velocities)])
     wt = wt / np.sqrt(np.sum(wt * wt))
     return Lyapunov(
-        times=np.asarray(_p.to_float(raw["output_t"]), dtype=float).reshape(-1),
-        log_growth=np.asarray(raw["output_log_growth"], dtype=float),
-        final_log_growth=float(raw["log_growth"]),
-        span=float(_p.to_float(raw["t"])),
+        times=np.asarray(_p.to_float(raw.output_t), dtype=float).reshape(-1),
+        log_growth=np.asarray(raw.output_log_growth, dtype=float),
+        final_log_growth=float(raw.log_growth),
+        span=float(_p.to_float(raw.t)),
         tangent=wt,
-        renormalizations=int(raw["renormalizations"]),
+        renormalizations=int(raw.renormalizations),
         result=result,
     )
 
@@ -687,7 +687,7 @@ LADDER = {
     "dd": (1e-16, 1e-19, 1e-22, 1e-25, 1e-28, 1e-30),
     "qd": (1e-34, 1e-40, 1e-46, 1e-52, 1e-56, 1e-60),
 }
-_ORDER = ("f64", "dd", "qd")
+_ORDER = tuple(name for name, p in _p.TABLE.items() if not p.compensated)  # narrowest first
 
 
 @dataclass(frozen=True)

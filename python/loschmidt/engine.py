@@ -18,7 +18,7 @@ from . import _core
 # loschmidt.options.Settings objects.
 Settings = Any
 
-__all__ = ["integrate", "batch", "lyapunov", "diagnostics", "limb_binary", "limb_unary"]
+__all__ = ["engine_options", "integrate", "batch", "lyapunov", "diagnostics", "limb_binary", "limb_unary"]
 
 #: precision -> (suffix of its integration kernels, suffix of its arithmetic kernels).
 _KERNELS = {"f64": ("f64", "f64"), "f64c": ("f64c", "f64"), "dd": ("dd", "dd"), "qd": ("qd", "qd")}
@@ -29,8 +29,27 @@ def _kernel(kind: str, precision: str, arithmetic: bool = False) -> Callable:
     return getattr(_core, f"{kind}_{suffix}")
 
 
+def engine_options(settings: Settings) -> tuple:
+    """The engine's own option objects for validated settings: ``(_core.Options, _core.ChainOptions)``.
+
+    Parameters
+    ----------
+    settings : loschmidt.options.Settings
+        The validated options.
+
+    Returns
+    -------
+    tuple of (_core.Options, _core.ChainOptions)
+        Each field set from ``Settings.engine_options``, whose keys are the fields' names.
+    """
+    opt, chain = _core.Options(), _core.ChainOptions()
+    for name, value in settings.engine_options().items():
+        setattr(opt if hasattr(opt, name) else chain, name, value)
+    return opt, chain
+
+
 def integrate(method: str, masses: np.ndarray, positions: np.ndarray, velocities: np.ndarray, t_limbs: np.ndarray,
-              times: np.ndarray, settings: Settings, radii: list) -> dict:
+              times: np.ndarray, settings: Settings, radii: list) -> Any:
     """One run of ``integrate`` on validated limb arrays.
 
     Parameters
@@ -41,27 +60,23 @@ def integrate(method: str, masses: np.ndarray, positions: np.ndarray, velocities
         Limb arrays (N, k), (N, 3, k), (N, 3, k).
     t_limbs, times : numpy.ndarray
         The span (k,) and output offsets (M, k).
-    settings : Settings
+    settings : loschmidt.options.Settings
         The validated options.
     radii : list of float
         One radius per body, or empty.
 
     Returns
     -------
-    dict
-        The engine's record of the run (see ``_core.pyi``).
+    _core.RunRecord
+        The engine's record of the run (``_core.pyi``).
     """
-    e = settings.engine_options()
-    return _kernel("integrate", settings.precision)(
-        method, masses, positions, velocities, t_limbs, times, e["rtol"], e["atol"], e["max_steps"],
-        e["max_wall_time"], e["max_order"], e["initial_step"], radii, e["regularization"], e["pn"], e["c"],
-        e["merger_factor"], stop=e["stop"], check_every=e["check_every"], distance_factor=e["distance_factor"],
-        fixed_step=e["fixed_step"],
-    )
+    opt, chain = engine_options(settings)
+    chain.radii = radii
+    return _kernel("integrate", settings.precision)(method, masses, positions, velocities, t_limbs, times, opt, chain)
 
 
 def batch(task: str, masses: np.ndarray, positions: np.ndarray, velocities: np.ndarray, t_limbs: np.ndarray,
-          settings: Settings, radii: list, threads: int, progress: Callable[[int], Any] | None) -> dict:
+          settings: Settings, radii: list, threads: int, progress: Callable[[int], Any] | None) -> Any:
     """A batch (``task`` "integrate" or "roundtrip") on validated limb arrays.
 
     Parameters
@@ -72,7 +87,7 @@ def batch(task: str, masses: np.ndarray, positions: np.ndarray, velocities: np.n
         Limb arrays (M, N, k), (M, N, 3, k), (M, N, 3, k).
     t_limbs : numpy.ndarray
         The span, (k,) or (M, k).
-    settings : Settings
+    settings : loschmidt.options.Settings
         The validated options.
     radii : list of float
         None, N shared or M * N row-major radii.
@@ -83,20 +98,17 @@ def batch(task: str, masses: np.ndarray, positions: np.ndarray, velocities: np.n
 
     Returns
     -------
-    dict
-        The engine's columns (see ``_core.pyi``).
+    _core.BatchRecord
+        The engine's columns (``_core.pyi``).
     """
-    e = settings.engine_options()
-    return _kernel(f"batch_{task}", settings.precision)(
-        settings.method, masses, positions, velocities, t_limbs, e["rtol"], e["atol"], e["max_steps"],
-        e["max_wall_time"], e["max_order"], e["initial_step"], threads, progress, radii=radii,
-        regularization=e["regularization"], pn=e["pn"], c=e["c"], merger_factor=e["merger_factor"],
-    )
+    opt, chain = engine_options(settings)
+    return _kernel(f"batch_{task}", settings.precision)(settings.method, masses, positions, velocities, t_limbs, opt,
+                                                       chain, radii, threads, progress)
 
 
 def lyapunov(masses: np.ndarray, positions: np.ndarray, velocities: np.ndarray, tangent_positions: np.ndarray,
              tangent_velocities: np.ndarray, t_limbs: np.ndarray, times: np.ndarray, settings: Settings,
-             renormalize: float) -> dict:
+             renormalize: float) -> Any:
     """The orbit and its tangent (variational equations) on validated limb arrays.
 
     Parameters
@@ -107,21 +119,19 @@ def lyapunov(masses: np.ndarray, positions: np.ndarray, velocities: np.ndarray, 
         Limb arrays of the initial tangent.
     t_limbs, times : numpy.ndarray
         The span and output offsets.
-    settings : Settings
+    settings : loschmidt.options.Settings
         The validated options.
     renormalize : float
         Bound on the tangent norm.
 
     Returns
     -------
-    dict
-        The engine's record of the run (see ``_core.pyi``).
+    _core.RunRecord
+        The engine's record of the run, with its Lyapunov fields (``_core.pyi``).
     """
-    e = settings.engine_options()
-    return _kernel("lyapunov", settings.precision)(
-        masses, positions, velocities, tangent_positions, tangent_velocities, t_limbs, times, e["rtol"], e["atol"],
-        e["max_steps"], e["max_wall_time"], e["max_order"], e["initial_step"], e["fixed_step"], renormalize,
-    )
+    opt, _chain = engine_options(settings)
+    return _kernel("lyapunov", settings.precision)(masses, positions, velocities, tangent_positions,
+                                                   tangent_velocities, t_limbs, times, opt, renormalize)
 
 
 def diagnostics(masses: np.ndarray, positions: np.ndarray, velocities: np.ndarray, precision: str) -> dict:

@@ -547,38 +547,38 @@ def _after_mergers(start: System, t_limbs: np.ndarray, result: Result, options: 
                                rechains=rechains, mergers=tuple(events))
 
 
-def _wrap(system: System, raw: dict, method: str, prec: str, rtol: float, want_trajectory: bool) -> Result:
+def _wrap(system: System, raw: Any, method: str, prec: str, rtol: float, want_trajectory: bool) -> Result:
     t0 = system.limbs("time")
-    t_abs = _p.add(t0, raw["t"], prec) if np.any(t0) else raw["t"]
+    t_abs = _p.add(t0, raw.t, prec) if np.any(t0) else raw.t
     # As the engine returned it: a failed run (status nonfinite) may hold infinities or NaN.
     final = System._unchecked(
-        system.limbs("masses"), np.ascontiguousarray(raw["positions"]), np.ascontiguousarray(raw["velocities"]),
+        system.limbs("masses"), np.ascontiguousarray(raw.positions), np.ascontiguousarray(raw.velocities),
         prec, system.radii, np.ascontiguousarray(t_abs),
     )
     traj = None
     if want_trajectory:
-        tt = raw["trajectory_t"]
+        tt = raw.trajectory_t
         if np.any(t0) and tt.shape[0]:
             tt = _p.add(np.broadcast_to(t0, tt.shape), tt, prec)
-        traj = Trajectory(prec, tt, raw["trajectory_positions"], raw["trajectory_velocities"], system)
-    code = int(raw["status"])
+        traj = Trajectory(prec, tt, raw.trajectory_positions, raw.trajectory_velocities, system)
+    code = int(raw.stats.status)
     return Result(
         system=final,
         t=float(_p.to_float(t_abs)),
         status=status_name(code),
         message=status_message(code),
-        steps=int(raw["steps"]),
-        rejected=int(raw["rejected"]),
-        evaluations=int(raw["evaluations"]),
-        wall_time=float(raw["wall_time"]),
-        energy_error=float(raw["energy_error"]),
+        steps=int(raw.stats.steps),
+        rejected=int(raw.stats.rejected),
+        evaluations=int(raw.stats.evaluations),
+        wall_time=float(raw.stats.wall_time),
+        energy_error=float(raw.energy_error),
         method=method,
         precision=prec,
         tol=rtol,
         trajectory=traj,
-        collision=tuple(int(i) for i in raw["collision_pair"]) if raw["collision_pair"][0] >= 0 else None,
-        rechains=int(raw["rechains"]),
-        lifetime=float(_p.to_float(raw["t"])) if status_name(code) == "stop_condition" else None,
+        collision=(int(raw.collision_i), int(raw.collision_j)) if raw.collision_i >= 0 else None,
+        rechains=int(raw.rechains),
+        lifetime=float(_p.to_float(raw.t)) if status_name(code) == "stop_condition" else None,
     )
 
 
@@ -587,8 +587,8 @@ def _common(a: System, b: System) -> tuple[System, System, str]:
         raise TypeError("a, b: expected two loschmidt.System objects")
     if a.n != b.n:
         raise ValueError(f"a, b: different numbers of bodies ({a.n} and {b.n})")
-    order = {"f64": 0, "f64c": 0, "dd": 1, "qd": 2}
-    prec = a.precision if order[a.precision] >= order[b.precision] else b.precision
+    finer = _p.info(b.precision).unit_roundoff < _p.info(a.precision).unit_roundoff
+    prec = b.precision if finer else a.precision
     return a.with_precision(prec), b.with_precision(prec), prec
 
 

@@ -26,7 +26,8 @@ from __future__ import annotations
 
 import math
 import numbers
-from dataclasses import dataclass, field
+from dataclasses import dataclass
+from dataclasses import field as _field
 from typing import Any, Callable, Mapping
 
 import numpy as np
@@ -75,6 +76,9 @@ DEFAULT_MAX_STEPS = 10**9
 #: are C++ ints.
 _INT64_MAX = 2**63 - 1
 _INT32_MAX = 2**31 - 1
+
+#: The engine's codes of the stop conditions (StopCondition in methods/options.hpp).
+_STOP_CODES = {"escape": 1}
 
 #: The entry points, for options that only some of them take.
 ENTRIES = ("integrate", "batch", "lyapunov")
@@ -368,17 +372,24 @@ class Option:
     toml : str
         What a TOML file holds for it: ``"number"``, ``"integer"``, ``"string"``, ``"span"`` (a number
         or a decimal string), ``"numbers"`` (a list) or ``"orders"`` (a list of PN orders).
+    field : str or None
+        The field of the engine's ``Options`` or ``ChainOptions`` (``_core.pyi``) it sets when
+        given; unset, the field keeps its C++ default. None: not passed as a field.
+    engine : callable or None
+        ``engine(canonical value) -> field value`` when the two forms differ.
     """
 
     name: str
     type: str
     default: str
     doc: str
-    check: Callable[[Any, Any], Any] = field(repr=False)
+    check: Callable[[Any, Any], Any] = _field(repr=False)
     methods: tuple = METHODS
     entries: tuple = ENTRIES
     manifest: str = "always"
     toml: str = "number"
+    field: str | None = None
+    engine: Callable[[Any], Any] | None = _field(default=None, repr=False)
 
     def unset(self, value: Any) -> bool:
         """Whether ``value`` means "not given".
@@ -399,30 +410,34 @@ _O = Option
 #: Every integration option, in documentation order.
 OPTIONS: dict[str, Option] = {o.name: o for o in (
     _O("tol", "float", "per precision (``precision.default_tolerance``)",
-       "Relative tolerance of the local error.", _tol),
-    _O("atol", "float", "``tol``", "Absolute tolerance.", _atol),
+       "Relative tolerance of the local error.", _tol, field="rtol"),
+    _O("atol", "float", "``tol``", "Absolute tolerance.", _atol, field="atol"),
     _O("max_steps", "int", f"no limit beyond {DEFAULT_MAX_STEPS:.0e} steps",
        "Budget of macro steps (status ``max_steps`` when spent; per system and leg in a batch).", _max_steps,
-       toml="integer"),
+       toml="integer", field="max_steps"),
     _O("max_wall_time", "float", "none",
-       "Budget of seconds (status ``max_wall_time``; per system and leg in a batch).", _max_wall_time),
+       "Budget of seconds (status ``max_wall_time``; per system and leg in a batch).", _max_wall_time,
+       field="max_wall_time"),
     _O("max_order", "int", "grows with the precision (``precision.order_limit``)",
        "Highest extrapolation column, at least 3 (any number >= 1 with ``fixed_step``).", _max_order,
-       toml="integer"),
-    _O("initial_step", "float", "chosen automatically", "First step size; not with ``fixed_step``.", _initial_step),
+       toml="integer", field="max_order"),
+    _O("initial_step", "float", "chosen automatically", "First step size; not with ``fixed_step``.", _initial_step,
+       field="initial_step"),
     _O("fixed_step", "float", "none (adaptive steps)",
        "Fixed-step mode, for measuring the order of the method: every step has this size (the last "
        "before each output time and ``t`` shortened to land), with exactly ``max_order`` rows of "
-       "extrapolation and no error control (``tol`` is not used).", _fixed_step,
-       methods=("gbs",), entries=("integrate", "lyapunov"), manifest="given"),
+       "extrapolation and no error control (``tol`` is not used); with method 'chain' a physical "
+       "time, as ``initial_step``.", _fixed_step,
+       entries=("integrate", "batch", "lyapunov"), manifest="given", field="fixed_step"),
     _O("radii", "array-like", "the System's or Ensemble's own radii",
        "Body radii: status ``collision`` when two bodies touch. One per body; in a batch shared by "
        "all systems, or an (M, N) array.", _radii,
-       methods=("chain",), entries=("batch",), manifest="given", toml="numbers"),
+       methods=("chain",), entries=("batch",), manifest="given", toml="numbers"),  # per system: engine.batch
     _O("regularization", "{'logarithmic', 'time_transformed'}", "'logarithmic'",
        "Time transformation of the chain method's leapfrog (Mikkola & Tanikawa 1999; Mikkola & "
        "Aarseth 2002).", _regularization,
-       methods=("chain",), entries=("integrate", "batch"), manifest="given", toml="string"),
+       methods=("chain",), entries=("integrate", "batch"), manifest="given", toml="string",
+       field="regularization", engine=REGULARIZATIONS.index),
     _O("pn", "tuple of {1, 2, 2.5}", "Newtonian",
        "Post-Newtonian terms for compact bodies, harmonic coordinates: 1 the full "
        "Einstein-Infeld-Hoffmann N-body 1PN equations; 2 and 2.5 (radiation reaction) the two-body "
@@ -434,17 +449,19 @@ OPTIONS: dict[str, Option] = {o.name: o for o in (
        "two-body 2PN motion in its centre-of-mass frame. The PN forces depend on the velocities in "
        "the frame given (harmonic coordinates; not Galilean invariant). 2.5PN (radiation reaction) "
        "makes the motion irreversible: a round trip does not come back.", _pn,
-       methods=("chain",), entries=("integrate", "batch"), manifest="given", toml="orders"),
+       methods=("chain",), entries=("integrate", "batch"), manifest="given", toml="orders",
+       field="pn_orders", engine=lambda orders: sum(PN_ORDERS[o] for o in orders)),
     _O("c", "number or decimal string", "none (required with ``pn``)",
        "The speed of light in N-body units (``loschmidt.units.Scale(...).c``, or the decimal string "
        "``Scale(...).decimal(\"c\")`` for extended precision); required with ``pn``.", _light_speed,
-       methods=("chain",), entries=("integrate", "batch"), manifest="given", toml="span"),
+       methods=("chain",), entries=("integrate", "batch"), manifest="given", toml="span",
+       field="light_speed"),  # its limbs in the working precision: Settings.engine_options
     _O("merger_factor", "float", f"{DEFAULT_MERGER_FACTOR:g}",
        "With ``pn``, a pair closer than ``merger_factor`` times the sum of its Schwarzschild radii, "
        "``merger_factor * 2 G (m_i + m_j) / c^2``, ends the run with status ``merger`` and the pair in "
        "``Result.collision`` (8: 16 G M / c^2, v/c ~ 0.25 on a circular orbit, where the PN expansion "
        "is about to fail); 0 switches the test off. The bodies are not merged.", _merger_factor,
-       methods=("chain",), entries=("integrate", "batch"), manifest="given"),
+       methods=("chain",), entries=("integrate", "batch"), manifest="given", field="merger_factor"),
     _O("stop", "{None, 'escape'}", "None",
        "``'escape'``: every ``check_every`` accepted steps the engine tests, in double precision, "
        "whether a body escapes, and stops with status ``stop_condition`` when one does; ``t`` is then "
@@ -455,12 +472,13 @@ OPTIONS: dict[str, Option] = {o.name: o for o in (
        "mass of all the others, receding, and farther than ``distance_factor`` times their size "
        "(cpp/include/loschmidt/nbody/escape.hpp). It is a trigger: classify the final state with "
        "``loschmidt.outcome``.", _stop,
-       methods=("gbs",), entries=("integrate",), manifest="given", toml="string"),
+       entries=("integrate", "batch"), manifest="given", toml="string",
+       field="stop", engine=lambda name: _STOP_CODES[name]),
     _O("check_every", "int", "10", "Accepted steps between escape tests.", _check_every,
-       methods=("gbs",), entries=("integrate",), manifest="given", toml="integer"),
+       entries=("integrate", "batch"), manifest="given", toml="integer", field="check_every"),
     _O("distance_factor", "float", f"{DEFAULT_DISTANCE_FACTOR:g}",
        "k of the escape test (``loschmidt.outcome``); 0 drops the distance condition.", _distance_factor,
-       methods=("gbs",), entries=("integrate",), manifest="given"),
+       entries=("integrate", "batch"), manifest="given", field="distance_factor"),
 )}
 
 
@@ -594,30 +612,23 @@ class Settings:
         return [] if c is None else [float(x) for x in _p.to_limbs(c, self.precision, name="c")]
 
     def engine_options(self) -> dict:
-        """What the engine's options receive: every budget and tolerance with its engine default.
+        """What the engine's options receive: the fields of the options given (``Option.field``);
+        the others keep the engine's defaults (``_core.Options()``), except the step budget.
 
         Returns
         -------
         dict
-            Keyword arguments for the bound ``Options`` (``_core.Options``) and the chain options.
+            Field name -> value of the engine's ``Options`` or ``ChainOptions`` (``_core.pyi``).
         """
-        v = self.values
-        return dict(
-            rtol=v["tol"],
-            atol=v["atol"],
-            max_steps=v.get("max_steps") or DEFAULT_MAX_STEPS,
-            max_wall_time=v.get("max_wall_time") or math.inf,
-            max_order=v.get("max_order") or 0,
-            initial_step=v.get("initial_step") or 0.0,
-            fixed_step=v.get("fixed_step") or 0.0,
-            stop=0 if v.get("stop") is None else 1,
-            check_every=v.get("check_every") or 10,
-            distance_factor=DEFAULT_DISTANCE_FACTOR if v.get("distance_factor") is None else v["distance_factor"],
-            regularization=REGULARIZATIONS.index(v.get("regularization") or REGULARIZATIONS[0]),
-            pn=self.pn_mask,
-            c=self.light_speed_limbs(),
-            merger_factor=DEFAULT_MERGER_FACTOR if v.get("merger_factor") is None else v["merger_factor"],
-        )
+        out = {"max_steps": DEFAULT_MAX_STEPS}
+        for name, value in self.values.items():
+            option = OPTIONS[name]
+            if value is None or option.field is None:
+                continue
+            out[option.field] = option.engine(value) if option.engine is not None else value
+        if "light_speed" in out:
+            out["light_speed"] = self.light_speed_limbs()
+        return out
 
 
 def refuse(name: str, method: str) -> ValueError:
