@@ -214,3 +214,29 @@ def test_precision_table_comes_from_the_engine() -> None:
         assert precision.epsilon(name) == p.unit_roundoff == 2.0**-bits
         assert loschmidt.DEFAULT_TOLERANCE[name] == tol
     assert precision.info("dd").order_limit == 18 and precision.info("qd").order_limit == 32
+
+
+def test_core_stubs_match_the_extension() -> None:
+    """_core.pyi (shipped with py.typed) names every public attribute of the compiled module, and
+    nothing it lacks; the bound classes' fields are those of the stub."""
+    import ast
+
+    from loschmidt import _core
+
+    stub = ast.parse((Path(loschmidt.__file__).parent / "_core.pyi").read_text(encoding="utf-8"))
+    names, fields = set(), {}
+    for node in stub.body:
+        if isinstance(node, (ast.FunctionDef, ast.ClassDef)):
+            names.add(node.name)
+        elif isinstance(node, ast.AnnAssign):
+            names.add(node.target.id)
+        elif isinstance(node, ast.Assign):
+            names.update(t.id for t in node.targets)
+        if isinstance(node, ast.ClassDef):
+            fields[node.name] = {n.target.id if isinstance(n, ast.AnnAssign) else n.name for n in node.body
+                                 if isinstance(n, (ast.AnnAssign, ast.FunctionDef)) and getattr(n, "name", "") != "__init__"}
+    public = {n for n in dir(_core) if not n.startswith("_")} | {"__version__"}
+    assert public == names - {"Limbs"}, (public ^ (names - {"Limbs"}))
+    for cls, want in fields.items():
+        have = {n for n in dir(getattr(_core, cls)) if not n.startswith("_")}
+        assert have == want, (cls, have ^ want)

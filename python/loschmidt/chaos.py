@@ -24,6 +24,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from . import options as _options
 from . import precision as _p
 from .integrate import DEFAULT_TOLERANCE, Result, integrate, phase_distances
 from .system import System
@@ -631,18 +632,17 @@ def lyapunov(
     (True, 0.33, 100)
     """
     from . import engine as _engine
-    from . import options as _o
     from .integrate import _output_times, _time_limbs, _wrap
 
     s = _check_system(system)
-    method = _o.check_method(method)
+    method = _options.check_method(method)
     if method != "gbs":
         raise ValueError(f"method: lyapunov supports gbs, got method={method!r}")
     prec = s.precision
     t_limbs = _time_limbs(t, prec, "t")
     if not np.any(t_limbs):
         raise ValueError("t: must be nonzero")
-    settings = _o.resolve(options, method=method, precision=prec, entry="lyapunov", t_limbs=t_limbs)
+    settings = _options.resolve(options, method=method, precision=prec, entry="lyapunov", t_limbs=t_limbs)
     ren = _positive(renormalize, "renormalize")
     if not 2.0 <= ren <= MAX_RENORMALIZE:
         raise ValueError(f"renormalize: must lie in [2, 2^300], got {renormalize!r}")
@@ -668,13 +668,7 @@ def lyapunov(
     )
 
 
-def _document_lyapunov() -> None:
-    from .options import document
-
-    lyapunov.__doc__ = document(lyapunov.__doc__, "lyapunov")
-
-
-_document_lyapunov()
+lyapunov.__doc__ = _options.document(lyapunov.__doc__, "lyapunov")
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -418,7 +418,7 @@ OPTIONS: dict[str, Option] = {o.name: o for o in (
     _O("max_wall_time", "float", "none",
        "Budget of seconds (status ``max_wall_time``; per system and leg in a batch).", _max_wall_time,
        field="max_wall_time"),
-    _O("max_order", "int", "grows with the precision (``precision.order_limit``)",
+    _O("max_order", "int", "grows with the precision (``precision.info(p).order_limit``)",
        "Highest extrapolation column, at least 3 (any number >= 1 with ``fixed_step``).", _max_order,
        toml="integer", field="max_order"),
     _O("initial_step", "float", "chosen automatically", "First step size; not with ``fixed_step``.", _initial_step,

@@ -100,20 +100,11 @@ def prepare_lifetime(**options: Any) -> dict:
             raise TypeError(f"{name}: expected a number, got bool")
         if _p.exact_fraction(value, name) <= 0:
             raise ValueError(f"{name}: must be positive, got {value!r}")
-    out = {
-        "t_max": opts["t"],
-        "interval": str(_p.to_string(_p.to_limbs(interval, opts["precision"], name="interval"), exact=True)),
-        "precision": opts["precision"],
-        "method": opts["method"],
-        "tol": opts["tol"],
-        "max_steps": opts["max_steps"],
-        "max_wall_time": opts["max_wall_time"],
-        "distance_factor": float(factor),
-        # The engine's escape stop (since issue 16; before it, a Python loop over spans of
-        # ``interval``): recorded so a store made by the old path is not resumed by this one.
-        "stop": "escape",
-    }
-    out.update({k: opts[k] for k in _CHAIN_KEYS if k in opts})  # only those given, as batch_options
+    # The batch options in their manifest form, the span renamed t_max; "stop": "escape" (the
+    # engine's stop since issue 16; before it, a Python loop over spans of ``interval``) makes a
+    # store of the old path refuse this definition rather than mix the two.
+    out = {"t_max": opts.pop("t"), **opts}
+    out["interval"] = str(_p.to_string(_p.to_limbs(interval, opts["precision"], name="interval"), exact=True))
     return out
 
 
