@@ -471,7 +471,7 @@ INTEGRATE_OPTIONS: dict[str, tuple[st.SearchStrategy, tuple[str, ...]]] = {
     "max_wall_time": (st.one_of(st.sampled_from([1e-300, 1e-3, 0.05, 0, -1, math.inf, math.nan])),
                       ("max_wall_time",)),
 }
-ALL_INTEGRATE_NAMES = tuple(INTEGRATE_OPTIONS) + ("t", "method", "system", "a, b")
+ALL_INTEGRATE_NAMES = tuple(INTEGRATE_OPTIONS) + ("t", "method", "system", "a, b", "radii")
 
 
 def option_values(name: str, junk_one_in: int = 4) -> st.SearchStrategy:
@@ -550,7 +550,10 @@ def test_integrate_one_bad_option_is_named(option: str, s: System, method: str, 
         method = "chain"
         opts.setdefault("pn", (1,))
         opts.setdefault("c", 10)
-    r = attempt(loschmidt.integrate, s, 0.05, method=method, **opts, names=INTEGRATE_OPTIONS[option][1])
+    names = INTEGRATE_OPTIONS[option][1]
+    if s.radii is not None and method != "chain":  # radii need the chain method (loschmidt.options)
+        names += ("radii",)
+    r = attempt(loschmidt.integrate, s, 0.05, method=method, **opts, names=names)
     if r is not None:
         check_result(r, s, 0.05, _n_times(opts))
 

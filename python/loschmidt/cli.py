@@ -127,13 +127,6 @@ def _method(v: Any, where: str) -> str:
     return _check_str(v, where, METHODS)
 
 
-def _tolerance(v: Any, where: str) -> float:
-    v = _check_number(v, where, positive=True)
-    if v >= 1:
-        raise ConfigError(f"{where}: must lie in (0, 1), got {v!r}")
-    return v
-
-
 def _length(v: Any, where: str) -> Any:
     if isinstance(v, str):
         return _check_str(v.lower(), where, ("pc", "au"))
@@ -149,11 +142,38 @@ _masses3 = lambda v, w: _check_numbers(v, w, 3)  # noqa: E731
 _any_str = lambda v, w: _check_str(v, w)  # noqa: E731
 _path = _any_str
 
-#: Options of the integrations (task options of "roundtrip" and "integrate", [run] of a run file).
-_INTEGRATION = {
-    "precision": _precision, "method": _method, "tol": _tolerance, "atol": _pos_num, "max_steps": _pos_int,
-    "max_wall_time": _pos_num, "max_order": lambda v, w: _check_int(v, w, minimum=2), "initial_step": _pos_num,
+
+def _integer(v: Any, where: str) -> int:
+    """Any integer: its range is the option's to check (loschmidt.options), with the same message."""
+    return _check_int(v, where, minimum=-(2**63))
+
+
+#: How a TOML value of each kind of option (``Option.toml``) is read; the option's own check
+#: (loschmidt.options) then runs where the option is used, with the message every entry point gives.
+_TOML_KINDS: dict[str, Callable] = {
+    "number": lambda v, w: _check_number(v, w),
+    "integer": _integer,
+    "string": lambda v, w: _check_str(v, w),
+    "span": lambda v, w: _check_number(v, w, allow_string=True),
+    "numbers": lambda v, w: _check_numbers(v, w),
+    "orders": lambda v, w: _pn_orders(v, w),
 }
+
+
+def _option_checks(names: tuple) -> dict[str, Callable]:
+    """TOML checks of integration options, mechanically from their declarations."""
+    from .options import OPTIONS
+
+    return {name: (_light_speed if name == "c" else _TOML_KINDS[OPTIONS[name].toml]) for name in names}
+
+
+def _integration(entry: str) -> dict[str, Callable]:
+    """Keys of a [run] or [task] section that are integration options: precision, method and every
+    option of the entry point (``loschmidt.options.names_for``)."""
+    from .options import names_for
+
+    return {"precision": _precision, "method": _method, **_option_checks(names_for(entry))}
+
 
 #: Ensemble families of a sweep file: name -> (builder arguments and their checks).
 _ENSEMBLES: dict[str, dict[str, Callable]] = {
@@ -164,9 +184,13 @@ _ENSEMBLES: dict[str, dict[str, Callable]] = {
 }
 _ENSEMBLE_REQUIRED = {"free-fall-grid": ("nx", "ny"), "free-fall-random": ("n", "seed"), "virial-triples": ("n", "seed")}
 
+
 def _pn_orders(v: Any, where: str) -> list:
-    if not isinstance(v, list) or not v or not all(_is_number(x) and x in (1, 2, 2.5) for x in v):
-        raise ConfigError(f"{where}: expected a list of post-Newtonian orders among 1, 2, 2.5, got {v!r}")
+    from .options import PN_ORDERS
+
+    if not isinstance(v, list) or not v or not all(_is_number(x) for x in v):
+        orders = ", ".join(f"{o:g}" for o in PN_ORDERS)
+        raise ConfigError(f"{where}: expected a list of post-Newtonian orders among {orders}, got {v!r}")
     return v
 
 
@@ -176,26 +200,20 @@ def _light_speed(v: Any, where: str) -> Any:
     return _check_number(v, where, positive=True, allow_string=True)
 
 
-def _regularization(v: Any, where: str) -> str:
-    from .integrate import REGULARIZATIONS
+def _lifetime_checks() -> dict[str, Callable]:
+    from .tasks import LIFETIME_OPTIONS
 
-    return _check_str(v, where, REGULARIZATIONS)
+    return {"t_max": _span, "interval": _span, "precision": _precision, "method": _method,
+            **_option_checks(LIFETIME_OPTIONS)}
 
-
-#: Options of the chain method in a sweep: collisions (shared radii) and post-Newtonian terms.
-_CHAIN = {"radii": _check_numbers, "regularization": _regularization, "pn": _pn_orders, "c": _light_speed,
-          "merger_factor": lambda v, w: _check_number(v, w)}
-_CHAIN_PN = {k: _CHAIN[k] for k in ("regularization", "pn", "c", "merger_factor")}
 
 #: Tasks of a sweep file: name -> (option checks, required options).
 _TASKS: dict[str, tuple[dict[str, Callable], tuple[str, ...]]] = {
-    "roundtrip": ({"t": _span, **_INTEGRATION, **_CHAIN}, ("t",)),
-    "integrate": ({"t": _span, **_INTEGRATION, **_CHAIN}, ("t",)),
+    "roundtrip": ({"t": _span, **_integration("batch")}, ("t",)),
+    "integrate": ({"t": _span, **_integration("batch")}, ("t",)),
     "amplification": ({"t": _span, "perturbation": _span, "body": lambda v, w: _check_int(v, w, minimum=0),
-                       "axis": lambda v, w: _check_int(v, w, minimum=0), **_INTEGRATION, **_CHAIN}, ("t",)),
-    "lifetime": ({"t_max": _span, "interval": _span, "precision": _precision, "method": _method, "tol": _tolerance,
-                  "max_steps": _pos_int, "max_wall_time": _pos_num, "distance_factor": _pos_num, **_CHAIN_PN},
-                 ("t_max",)),
+                       "axis": lambda v, w: _check_int(v, w, minimum=0), **_integration("batch")}, ("t",)),
+    "lifetime": (_lifetime_checks(), ("t_max",)),
 }
 
 #: Single systems of a run file (and ``run --family``): name -> argument checks.
@@ -220,7 +238,7 @@ _SWEEP_SECTIONS = {
 }
 _RUN_SECTIONS = {
     "system": None,
-    "run": {"t": _span, "roundtrip": _check_bool, "outputs": _pos_int, "plot": _path, **_INTEGRATION},
+    "run": {"t": _span, "roundtrip": _check_bool, "outputs": _pos_int, "plot": _path, **_integration("integrate")},
     "units": _UNITS,
 }
 
@@ -444,13 +462,18 @@ def _cmd_run(args: argparse.Namespace) -> int:
             _span(args.t, "--t")
         except ConfigError as exc:
             raise _Usage(str(exc)) from None
-    opts = {k: run[k] for k in ("method", "tol", "atol", "max_steps", "max_wall_time", "max_order", "initial_step")
-            if k in run}
+    from .options import names_for
+
+    opts = {k: run[k] for k in ("method",) + names_for("integrate") if k in run}
     precision = run.get("precision", "dd")
     family, sys_args = cfg["system"]
     system = _build_system(family, sys_args, precision, where)
     t = run["t"]
     scale = _scale(cfg["units"], where)
+    if opts.get("c") == "units":  # the speed of light in the [units] section's units
+        if scale is None:
+            raise ConfigError(f"{where}: [run] c = \"units\" needs a [units] section (mass, length)")
+        opts["c"] = scale.decimal("c")
     from tqdm.auto import tqdm
 
     legs = 2 if run.get("roundtrip") else 1

@@ -67,10 +67,10 @@ FIGURE_EIGHT_PERIOD = 6.32591398
 # helpers
 # ---------------------------------------------------------------------------------------------
 def _system(masses, positions, velocities, precision, context: str = ""):
-    import loschmidt
+    from .system import System
 
     try:
-        return loschmidt.System(masses, positions, velocities, precision=precision)
+        return System(masses, positions, velocities, precision=precision)
     except ValueError as exc:  # e.g. bodies that coincide, or values beyond double range, once rounded
         if not context:
             raise

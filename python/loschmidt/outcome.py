@@ -67,6 +67,7 @@ from typing import Any
 import mpmath
 import numpy as np
 
+from . import options as _options
 from . import precision as _p
 from .orbits import GUARD_BITS, OrbitalElements, _elements_mp, working_bits
 from .system import System
@@ -83,8 +84,8 @@ __all__ = [
 #: The kinds of outcome, in the order they are decided (see the module docstring).
 OUTCOME_KINDS = ("collision", "escape", "bound", "undecided")
 
-#: k in the escape test R > k a_binary (common practice; 10 is a usual choice).
-DEFAULT_DISTANCE_FACTOR = 10.0
+#: k in the escape test R > k a_binary (declared with the option in loschmidt.options).
+DEFAULT_DISTANCE_FACTOR = _options.DEFAULT_DISTANCE_FACTOR
 
 _NAN = float("nan")
 
@@ -430,12 +431,7 @@ def _escape_test(p, parts, masses, pos, vel, k):
 # validation
 # ---------------------------------------------------------------------------------------------
 def _check_factor(value: Any) -> float:
-    if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
-        raise TypeError(f"distance_factor: expected a real number, got {type(value).__name__}")
-    v = _p._real(value)
-    if not math.isfinite(v) or v < 0:
-        raise ValueError(f"distance_factor: must be a finite number >= 0, got {value!r}")
-    return v
+    return _options.check_distance_factor(value)
 
 
 def _check_radii(radii: Any, system: System) -> np.ndarray | None:

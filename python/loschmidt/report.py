@@ -330,7 +330,7 @@ def write_report(stores: Any, path: Any, title: str | None = None, threshold: fl
     heading = title or ("loschmidt report: " + ", ".join(p.name for p in paths))
     parts.append(f"<h1>{html.escape(heading)}</h1>")
     now = datetime.datetime.now(datetime.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
-    from . import __version__
+    from ._version import __version__
 
     parts.append(f'<p class="muted">Written {now} by loschmidt {html.escape(str(__version__))}. '
                  f"Reversible means the round trip returned within delta &le; {threshold:.0e} of the start "

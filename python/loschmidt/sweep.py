@@ -54,6 +54,7 @@ from typing import Any, Callable, Iterable, Iterator, Mapping
 
 import numpy as np
 
+from . import options as _options
 from .batch import batch_options, integrate_batch, roundtrip_batch
 from .ensemble import Ensemble
 from .store import SweepStore, _convert, limbs as _limbs
@@ -160,8 +161,8 @@ def _no_options(**options: Any) -> dict:
     return {}
 
 
-_BATCH_KEYS = ("t", "method", "precision", "tol", "atol", "max_steps", "max_wall_time", "max_order", "initial_step",
-               "radii", "regularization", "pn", "c", "merger_factor")
+#: Options of the batch tasks: the span, method, precision and every batch option of loschmidt.options.
+_BATCH_KEYS = ("t", "method", "precision") + _options.names_for("batch")
 
 
 def _prepare_batch(**options: Any) -> dict:
@@ -445,6 +446,8 @@ class Sweep:
         self._source = _Source(ensemble, self.chunk_size)
         if self._source.members is not None:
             self._total = self._source.members
+        if self._source.radii and self.options.get("method") in _options.METHODS:
+            _options.check_carried_radii(self.options["method"])  # before the store is touched
         self.definition = {
             "format": "loschmidt-sweep-1",
             "task": self.task.name,
