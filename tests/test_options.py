@@ -192,6 +192,7 @@ def test_python_and_engine_defaults_agree() -> None:
     from loschmidt import _core
 
     assert _core.Options().distance_factor == options.DEFAULT_DISTANCE_FACTOR
+    assert _core.Options().max_steps == options.DEFAULT_MAX_STEPS
     assert _core.ChainOptions().merger_factor == options.DEFAULT_MERGER_FACTOR
     assert str(_core.Options().check_every) == options.OPTIONS["check_every"].default
     assert _core.ChainOptions().regularization == options.REGULARIZATIONS.index("logarithmic")

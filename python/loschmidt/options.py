@@ -613,14 +613,14 @@ class Settings:
 
     def engine_options(self) -> dict:
         """What the engine's options receive: the fields of the options given (``Option.field``);
-        the others keep the engine's defaults (``_core.Options()``), except the step budget.
+        the others keep the engine's defaults (``_core.Options()``).
 
         Returns
         -------
         dict
             Field name -> value of the engine's ``Options`` or ``ChainOptions`` (``_core.pyi``).
         """
-        out = {"max_steps": DEFAULT_MAX_STEPS}
+        out = {}
         for name, value in self.values.items():
             option = OPTIONS[name]
             if value is None or option.field is None:

@@ -46,8 +46,10 @@ struct Options {
   // with atol = 0); a nonzero error on a zero scale counts as infinite.
   double rtol = 1e-12;
   double atol = 0.0;
-  // Budget of attempted (accepted + rejected) macro steps.
-  long long max_steps = 10000000;
+  // Budget of attempted (accepted + rejected) macro steps. The default is high enough never to
+  // end a useful run (1e9 steps take hours) and low enough that a run that cannot progress ends;
+  // Python reads it from here (options.DEFAULT_MAX_STEPS).
+  long long max_steps = 1000000000;
   // Wall-clock budget in seconds; 0 means none.
   double max_wall_time = 0.0;
   // Largest number of rows of the extrapolation tableau (the order reached is 2 * rows); 0 means
