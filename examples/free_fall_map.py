@@ -14,7 +14,7 @@ Usage::
 
 ``--quick``: a 3 x 5 grid (11 members) followed for 5 time units (a few seconds). Full: an 8 x 14
 grid (80 members) for 10 time units (about 30 CPU-seconds, most of it in dd). Output in ``--out``
-(default ``./example-output``): ``free_fall_map.png`` and the stores
+(default: a new temporary directory, printed): ``free_fall_map.png`` and the stores
 ``free-fall-<quick|full>-<precision>/`` (run the script again and finished chunks are kept; Ctrl-C
 at any time loses at most the running chunks).
 
@@ -46,9 +46,14 @@ NAMES = {"f64": "f64 (double)", "dd": "dd (double-double)"}
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="3 x 5 grid, t = 5 (instead of 8 x 14, t = 10)")
-    parser.add_argument("--out", type=Path, default=Path("example-output"), help="directory for the stores and the PNG")
+    parser.add_argument("--out", type=Path, default=None, help="directory for the stores and the PNG (default: a new temporary directory)")
     parser.add_argument("--threads", type=int, default=None, help="C++ threads (default: all cores)")
     args = parser.parse_args(argv)
+    if args.out is None:  # never into the checkout: a fresh temporary directory
+        import tempfile
+
+        args.out = Path(tempfile.mkdtemp(prefix="loschmidt-example-"))
+        print(f"output directory: {args.out}")
     nx, ny, t = (3, 5, 5) if args.quick else (8, 14, 10)
     mode = "quick" if args.quick else "full"
     args.out.mkdir(parents=True, exist_ok=True)

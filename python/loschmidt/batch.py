@@ -27,11 +27,11 @@ from .integrate import (
     DEFAULT_MERGER_FACTOR,
     PN_ORDERS,
     REGULARIZATIONS,
-    _check_method,
     _check_pn,
     _positive_or_none,
     _time_limbs,
     check_tolerance,
+    resolve_method,
 )
 from .status import STATUSES, SUCCESS_STATUSES
 from .system import System
@@ -50,7 +50,7 @@ def batch_options(
     t: Any,
     *,
     precision: str = "dd",
-    method: str = "gbs",
+    method: str | None = None,
     tol: float | None = None,
     atol: float | None = None,
     max_steps: int | None = None,
@@ -95,7 +95,11 @@ def batch_options(
     ('1.000000000000000055511151231257827021181583404541015625e-1', 1e-13, None)
     """
     prec = _p.check_precision(precision)
-    method = _check_method(method)
+    chain_given = radii is not None or regularization is not None or (
+        pn is not None and not (isinstance(pn, (tuple, list)) and len(pn) == 0))
+    # None (automatic) stays None until the number of bodies is known (``_execute``), unless a
+    # chain-only option decides it now
+    method = None if method is None and not chain_given else resolve_method(method, 0, chain_only=chain_given)
     t_limbs = _time_limbs(t, prec, "t")
     rtol = check_tolerance(tol, prec, "tol")
     a_tol = rtol if atol is None else _positive_or_none(atol, "atol")
@@ -118,7 +122,7 @@ def batch_options(
         "max_order": order,
         "initial_step": h0,
     }
-    out.update(_chain_options(method, prec, radii, regularization, pn, c, merger_factor))
+    out.update(_chain_options(method or "gbs", prec, radii, regularization, pn, c, merger_factor))
     return out
 
 
@@ -310,10 +314,35 @@ class BatchResult:
         """(M,) bool: the run (both legs of a round trip) ended as asked."""
         return _SUCCESS[self.fields["status_code"]]
 
+    def reversible(self, threshold: float | None = None) -> np.ndarray:
+        """(M,) bool: round trips that came back, both legs finished and ``delta <= threshold``.
+
+        Parameters
+        ----------
+        threshold : float, optional
+            Largest ``delta`` that counts (default ``loschmidt.chaos.REVERSIBLE_THRESHOLD``, 1e-10,
+            a phase-space distance in N-body units).
+
+        Returns
+        -------
+        numpy.ndarray
+            False for every system of an ``integrate_batch`` (no round trip) and for NaN deltas.
+        """
+        from .chaos import REVERSIBLE_THRESHOLD, _positive
+
+        limit = REVERSIBLE_THRESHOLD if threshold is None else _positive(threshold, "threshold")
+        if self.task != "roundtrip":
+            raise ValueError("reversible: only a roundtrip_batch result has round trips")
+        with np.errstate(invalid="ignore"):
+            return self.success & (np.asarray(self.fields["delta"], dtype=float) <= limit)
+
     def __repr__(self) -> str:
         ok = int(np.count_nonzero(self.success))
-        return (f"BatchResult(task={self.task!r}, systems={len(self)}, bodies={self.n}, "
-                f"precision={self.precision!r}, succeeded={ok})")
+        text = (f"BatchResult(task={self.task!r}, systems={len(self)}, bodies={self.n}, "
+                f"precision={self.precision!r}, succeeded={ok}")
+        if self.task == "roundtrip":
+            text += f", reversible={int(np.count_nonzero(self.reversible()))}"
+        return text + ")"
 
     # -- systems -------------------------------------------------------------------------------------
     def systems(self, i: Any) -> dict:
@@ -392,6 +421,7 @@ def _run(task: str, masses: Any, positions: Any, velocities: Any, t: Any, option
     ml, x, v = _members(masses, positions, velocities, prec)
     n_threads = _threads(threads, ml.shape[0])
     t_limbs = _time_limbs(opts["t"], prec, "t")
+    opts["method"] = resolve_method(opts["method"], ml.shape[1])
     given = opts.get("radii")
     if isinstance(masses, Ensemble) and masses.radii is not None and opts["method"] == "chain":
         if given is not None:
@@ -406,11 +436,12 @@ def _execute(task: str, ml: np.ndarray, x: np.ndarray, v: np.ndarray, opts: dict
              progress: Callable[[int], Any] | None) -> dict:
     """The engine's batch kernel on validated limb arrays and ``batch_options`` output."""
     prec = opts["precision"]
+    method = resolve_method(opts["method"], ml.shape[1])
     t_limbs = _time_limbs(opts["t"], prec, "t")
-    mask, c_limbs, factor = _check_pn(opts.get("pn"), opts.get("c"), opts.get("merger_factor"), opts["method"], prec)
+    mask, c_limbs, factor = _check_pn(opts.get("pn"), opts.get("c"), opts.get("merger_factor"), method, prec)
     kernel = getattr(_core, f"batch_{task}_{prec}")
     return kernel(
-        opts["method"], ml, x, v, t_limbs, opts["tol"], opts["atol"], opts["max_steps"] or 10**9,
+        method, ml, x, v, t_limbs, opts["tol"], opts["atol"], opts["max_steps"] or 10**9,
         opts["max_wall_time"] or math.inf, opts["max_order"] or 0, opts["initial_step"] or 0.0, threads,
         progress, radii=radii, regularization=REGULARIZATIONS.index(opts.get("regularization", REGULARIZATIONS[0])),
         pn=mask, c=c_limbs, merger_factor=factor if mask else DEFAULT_MERGER_FACTOR,
@@ -468,7 +499,7 @@ def integrate_batch(
     velocities: Any = None,
     t: Any = None,
     *,
-    method: str = "gbs",
+    method: str | None = None,
     precision: str = "dd",
     tol: float | None = None,
     atol: float | None = None,
@@ -505,8 +536,9 @@ def integrate_batch(
         Ensemble.
     t : number or decimal string
         Time span (of each leg, for a round trip).
-    method : {"gbs", "chain"}, optional
-        Integration method (default ``"gbs"``).
+    method : {None, "gbs", "chain"}, optional
+        Integration method; default None chooses by the number of bodies
+        (``loschmidt.integrate.resolve_method``: ``"chain"`` for few bodies).
     precision : {"f64", "f64c", "dd", "qd"}, optional
         Working precision (default ``"dd"``).
     tol, atol : float, optional
@@ -560,7 +592,7 @@ def roundtrip_batch(
     velocities: Any = None,
     t: Any = None,
     *,
-    method: str = "gbs",
+    method: str | None = None,
     precision: str = "dd",
     tol: float | None = None,
     atol: float | None = None,
@@ -591,8 +623,9 @@ def roundtrip_batch(
         Ensemble.
     t : number or decimal string
         Time span (of each leg, for a round trip).
-    method : {"gbs", "chain"}, optional
-        Integration method (default ``"gbs"``).
+    method : {None, "gbs", "chain"}, optional
+        Integration method; default None chooses by the number of bodies
+        (``loschmidt.integrate.resolve_method``: ``"chain"`` for few bodies).
     precision : {"f64", "f64c", "dd", "qd"}, optional
         Working precision (default ``"dd"``).
     tol, atol : float, optional

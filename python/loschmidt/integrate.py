@@ -21,6 +21,8 @@ from .system import System
 
 __all__ = [
     "METHODS",
+    "CHAIN_MAX_BODIES",
+    "resolve_method",
     "DEFAULT_TOLERANCE",
     "integrate",
     "Result",
@@ -33,6 +35,13 @@ __all__ = [
 #: Names of the integration methods, ``"gbs"`` (Gragg-Bulirsch-Stoer in Cartesian coordinates) and
 #: ``"chain"`` (the same extrapolation over a regularized leapfrog in chain coordinates).
 METHODS = ("gbs", "chain")
+
+#: Most bodies for which the automatic choice (``method=None``, the default) takes ``"chain"``.
+#: Few-body work is what the chain is for (Mikkola & Aarseth 1993 built it for small-N
+#: subsystems); measured on the free-fall triples of ``ics.free_fall_grid(6, 6)``, t = 20, dd:
+#: gbs ends 7 of 25 members with step_underflow, chain finishes all 25. Above this count the chain
+#: is long and ``gbs`` is the method for smooth many-body problems (README, Methods).
+CHAIN_MAX_BODIES = 10
 
 #: Regularizations of the chain method's leapfrog substep.
 REGULARIZATIONS = ("logarithmic", "time_transformed")
@@ -406,6 +415,43 @@ def check_tolerance(tol: Any, prec: str, name: str = "tol") -> float:
     return v
 
 
+def resolve_method(method: Any, bodies: int, gbs_only: bool = False, chain_only: bool = False) -> str:
+    """The integration method to run: ``method`` itself, or for None the automatic choice.
+
+    The automatic choice is ``"chain"`` for at most ``CHAIN_MAX_BODIES`` bodies (or when a
+    chain-only option such as ``pn`` is given) and ``"gbs"`` otherwise (or when a gbs-only option
+    such as ``stop`` or ``fixed_step`` is given). Every entry point calls this one function, and
+    results and stores record the method that ran.
+
+    Parameters
+    ----------
+    method : {None, "gbs", "chain"}
+        The method asked for; None chooses.
+    bodies : int
+        Number of bodies.
+    gbs_only : bool, optional
+        An option only ``gbs`` has was given.
+    chain_only : bool, optional
+        An option only ``chain`` has was given.
+
+    Returns
+    -------
+    str
+        ``"gbs"`` or ``"chain"``.
+
+    Examples
+    --------
+    >>> from loschmidt.integrate import resolve_method
+    >>> resolve_method(None, 3), resolve_method(None, 50), resolve_method("gbs", 3)
+    ('chain', 'gbs', 'gbs')
+    """
+    if method is not None:
+        return _check_method(method)
+    if chain_only:
+        return "chain"
+    return "gbs" if gbs_only or bodies > CHAIN_MAX_BODIES else "chain"
+
+
 def _check_method(method: Any) -> str:
     if not isinstance(method, str):
         raise TypeError(f"method: expected one of {METHODS}, got {type(method).__name__}")
@@ -519,7 +565,7 @@ def _check_stop(stop: Any, check_every: Any, distance_factor: Any, fixed_step: A
 def integrate(
     system: System,
     t: Any,
-    method: str = "gbs",
+    method: str | None = None,
     tol: float | None = None,
     atol: float | None = None,
     times: Sequence[Any] | None = None,
@@ -545,7 +591,9 @@ def integrate(
         The start; its precision is the working precision.
     t : number or decimal string
         Span of the integration, converted exactly to the working precision.
-    method : {"gbs", "chain"}
+    method : {None, "gbs", "chain"}, optional
+        Default None: chosen by ``resolve_method`` (``"chain"`` for at most ``CHAIN_MAX_BODIES``
+        bodies, ``"gbs"`` above that or with ``stop`` or ``fixed_step``).
         ``"gbs"``: Gragg-Bulirsch-Stoer extrapolation with order and step control, in the bodies'
         coordinates. ``"chain"``: the same extrapolation over a regularized leapfrog in chain
         coordinates (Mikkola & Aarseth 1993; Mikkola & Tanikawa 1999): close encounters and
@@ -639,7 +687,8 @@ def integrate(
     if not isinstance(system, System):
         raise TypeError(f"system: expected a loschmidt.System, got {type(system).__name__}")
     prec = system.precision
-    method = _check_method(method)
+    method = resolve_method(method, system.n, gbs_only=stop is not None or fixed_step is not None,
+                            chain_only=pn is not None and not (isinstance(pn, (tuple, list)) and len(pn) == 0))
     t_limbs = _time_limbs(t, prec, "t")
     rtol = check_tolerance(tol, prec, "tol")
     a_tol = rtol if atol is None else _positive_or_none(atol, "atol")

@@ -252,6 +252,9 @@ def run_amplification(chunk: Any, options: Mapping[str, Any]) -> dict:
     prec = opts["precision"]
     ml, x, v = _members(chunk, None, None, prec)
     count, n = ml.shape[:2]
+    from .integrate import resolve_method
+
+    opts["method"] = resolve_method(opts["method"], n)
     if body >= n:
         raise ValueError(f"body: expected an index below the {n} bodies, got {body}")
     twin = x.copy()
