@@ -4,7 +4,7 @@
 ``dask.distributed.Client``: the workers receive only each chunk's initial conditions and the
 options, integrate them in the C++ engine, and send the columns back; the calling process writes
 the store. Because every member is integrated on its own, the results are the same bits wherever
-and in whatever order the chunks run. This script runs round trips of free-fall triples (body 3
+and in whatever order the chunks run. This script runs round trips of free-fall triples (body 2
 released from rest at the cell centres of a grid over the Agekyan & Anosova 1967 region) twice:
 
 1. on the local C++ thread pool (``executor=None``, 2 threads), and

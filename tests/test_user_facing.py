@@ -391,3 +391,15 @@ def test_report_names_sections_apart_and_prints_numbers_short(tmp_path):
 
     assert _number_text("4.5713045779727362969424575567245483398437e+3") == "4571.30457797"
     assert _number_text("1.0e+1") == "10"
+
+
+def test_every_panel_explains_its_flat_colours():
+    table = _grid_table()
+    life = dict(table)
+    life["lifetime"] = np.where(np.arange(len(table["x"])) % 7 == 0, np.nan, 5.0 + np.arange(len(table["x"])))
+    fig = plots.lifetime_map({"Newtonian": life, "post-Newtonian": life})
+    for ax in fig.axes[:2]:
+        assert [t.get_text() for t in ax.get_legend().get_texts()] == ["still bound at the end"]
+    fig = plots.reversibility_map({"f64": table, "dd": table})
+    for ax in fig.axes[:2]:
+        assert ax.get_legend() is not None

@@ -155,6 +155,8 @@ def _signed_span(v: Any, where: str) -> Any:
     if Decimal(str(v).strip()) == 0:
         raise ConfigError(f"{where}: must be non-zero (negative integrates backward), got {v!r}")
     return v
+
+
 _real = lambda v, w: _check_number(v, w)  # noqa: E731
 _seed = lambda v, w: _check_int(v, w, minimum=0)  # noqa: E731
 _masses3 = lambda v, w: _check_numbers(v, w, 3)  # noqa: E731

@@ -335,6 +335,22 @@ def _outline(ax: Any, table: Any, mask: np.ndarray, colour: str, u: AxisUnits) -
 _IRREVERSIBLE = "outline:red"
 
 
+def _ending_counts(ended: np.ndarray, kinds: np.ndarray | None) -> dict:
+    """How the members' lifetimes ended: {"escaped": k, "merged": k, "collided": k, ...}; an escape
+    count always, the others when non-zero (a merger is never called an escape)."""
+    if kinds is None:
+        return {"escaped": int(np.count_nonzero(ended))}
+    out = {}
+    for word, kind in (("escaped", "escape"), ("merged", "merger"), ("collided", "collision")):
+        k = int(np.count_nonzero(ended & (kinds == kind)))
+        if k or kind == "escape":
+            out[word] = k
+    other = int(np.count_nonzero(ended & ~np.isin(kinds, ["escape", "merger", "collision"])))
+    if other:
+        out["ended otherwise"] = other
+    return out
+
+
 def _figure(size: tuple[float, float] | None, default: tuple[float, float]):
     Figure, _colors = _mpl()
     return Figure(figsize=size or default, layout="constrained")
@@ -423,15 +439,17 @@ def reversibility_map(
     fig = _figure(size, _panel_width(len(frames)))
     axes = fig.subplots(1, len(frames), squeeze=False)[0]
     mappable = None
-    any_failed = any_irreversible = False
     for ax, (label, table), d, ok in zip(axes, frames, logs, oks):
         lg = _log10_delta(d, lo)
         failed = ~ok
-        any_failed |= bool(np.any(failed))
         mappable = _paint(ax, table, lg, ok, cmap, norm, u, [(failed, _NOT_FINISHED)])
         irreversible = ok & ~(d <= threshold)
-        any_irreversible |= bool(np.any(irreversible))
         _outline(ax, table, irreversible, _IRREVERSIBLE.split(":", 1)[1], u)
+        # each panel explains its own marks
+        legend = [(f"irreversible (delta > {threshold:.0e})", _IRREVERSIBLE)] if np.any(irreversible) else []
+        if np.any(failed):
+            legend.append(("did not finish", _NOT_FINISHED))
+        _legend_patches(ax, legend)
         rev = np.count_nonzero(ok & (d <= threshold))
         sub = f"{rev} of {len(d)} reversible (delta <= {threshold:.0e})"
         ax.set_title(f"{label}\n{sub}" if label else sub, fontsize=10)
@@ -442,10 +460,6 @@ def reversibility_map(
     cb.ax.axhline(math.log10(threshold), color="red", lw=1.5)
     cb.ax.text(-0.15, math.log10(threshold), "threshold", color="red", fontsize=7, ha="right", va="center",
                transform=cb.ax.get_yaxis_transform())
-    legend = [(f"irreversible (delta > {threshold:.0e})", _IRREVERSIBLE)] if any_irreversible else []
-    if any_failed:
-        legend.append(("did not finish", _NOT_FINISHED))
-    _legend_patches(axes[-1], legend)
     _suptitle(fig, title or "Reversibility of the free fall: forward, velocities reversed, back")
     return fig
 
@@ -522,35 +536,32 @@ def lifetime_map(
     fig = _figure(size, _panel_width(len(frames)))
     axes = fig.subplots(1, len(frames), squeeze=False)[0]
     mappable = None
-    legend = {}
     any_merger = False
     for ax, (label, table), v in zip(axes, frames, values):
         finished = _finished(table, np.where(np.isnan(v), 0.0, v))
-        escaped = finished & np.isfinite(v) & (v > 0)
-        censored = finished & ~escaped
+        ended = finished & np.isfinite(v) & (v > 0)
+        censored = finished & ~ended
         failed = ~finished
-        mappable = _paint(ax, table, v, escaped, cmap, norm, u,
+        mappable = _paint(ax, table, v, ended, cmap, norm, u,
                           [(censored, _CENSORED), (failed, _NOT_FINISHED)])
+        # each panel explains its own flat colours (a legend on one panel left the other's unexplained)
+        legend = []
         if np.any(censored):
-            legend["no escape yet"] = _CENSORED
+            legend.append(("still bound at the end", _CENSORED))
         if np.any(failed):
-            legend["did not finish"] = _NOT_FINISHED
-        med = np.median(v[escaped]) if np.any(escaped) else float("nan")
+            legend.append(("did not finish", _NOT_FINISHED))
+        _legend_patches(ax, legend)
+        med = np.median(v[ended]) if np.any(ended) else float("nan")
         kinds = _col(table, "outcome", object) if _has(table, "outcome") else None
-        merged = int(np.count_nonzero(escaped & (kinds == "merger"))) if kinds is not None else 0
-        if merged:
-            any_merger = True
-            sub = (f"{np.count_nonzero(escaped) - merged} escaped, {merged} merged of {len(v)}\n"
-                   f"median {med:.3g} {u.time_name}")
-        else:
-            sub = f"{np.count_nonzero(escaped)} of {len(v)} escaped, median {med:.3g} {u.time_name}"
+        counts = _ending_counts(ended, kinds)
+        any_merger |= "merged" in counts
+        sub = f"{', '.join(f'{k} {w}' for w, k in counts.items())} of {len(v)}\nmedian {med:.3g} {u.time_name}"
         ax.set_title(f"{label}\n{sub}" if label else sub, fontsize=10)
         if ax is not axes[0]:
             ax.set_ylabel("")
     cb = fig.colorbar(mappable, ax=list(axes), shrink=0.85)
     _plain_log_ticks(cb.ax.yaxis, lo, hi)
     cb.set_label(u.time("time to the first escape or merger" if any_merger else "time to the first escape"))
-    _legend_patches(axes[-1], list(legend.items()))
     _suptitle(fig, title or "Lifetime of the free-fall triple")
     return fig
 
@@ -669,16 +680,7 @@ def lifetime_histogram(
     for k, (label, v, kinds) in enumerate(series):
         good = np.isfinite(v) & (v > 0)
         # the lifetime ends at an escape, a merger or a contact: each is counted under its own name
-        parts = []
-        for word, kind in (("escaped", "escape"), ("merged", "merger"), ("collided", "collision")):
-            count = int(np.count_nonzero(good & (kinds == kind))) if kinds is not None else (
-                int(np.count_nonzero(good)) if kind == "escape" else 0)
-            if count or kind == "escape":
-                parts.append(f"{count} {word}")
-        if kinds is not None:
-            other = int(np.count_nonzero(good & ~np.isin(kinds, ["escape", "merger", "collision"])))
-            if other:
-                parts.append(f"{other} ended otherwise")
+        parts = [f"{k} {w}" for w, k in _ending_counts(good, kinds).items()]
         text = f"{label + ': ' if label else ''}{', '.join(parts)}"
         if np.count_nonzero(~good):
             text += f", {np.count_nonzero(~good)} still bound at the end"
