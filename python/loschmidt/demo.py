@@ -43,8 +43,11 @@ __all__ = [
 #: Mass of each black hole, in solar masses (the mass unit); the length unit is one parsec.
 SCALE_MASS = 1e6
 
-#: Round-trip distance (N-body units) at or below which a member counts as reversible.
-from .chaos import REVERSIBLE_THRESHOLD as THRESHOLD  # noqa: E402
+from .chaos import REVERSIBLE_THRESHOLD  # noqa: E402
+
+#: Round-trip distance (N-body units) at or below which a member counts as reversible
+#: (``loschmidt.chaos.REVERSIBLE_THRESHOLD``).
+THRESHOLD = REVERSIBLE_THRESHOLD
 
 #: Post-Newtonian orders of the demo's relativistic lifetime sweep.
 PN_ORDERS = (1, 2, 2.5)

@@ -40,9 +40,11 @@ __all__ = [
     "DEFAULT_THRESHOLD",
 ]
 
+from .chaos import REVERSIBLE_THRESHOLD  # noqa: E402
+
 #: Round-trip distance at or below which a member counts as reversible (N-body units); the one
 #: threshold of the package (``loschmidt.chaos.REVERSIBLE_THRESHOLD``).
-from .chaos import REVERSIBLE_THRESHOLD as DEFAULT_THRESHOLD  # noqa: E402
+DEFAULT_THRESHOLD = REVERSIBLE_THRESHOLD
 
 _SQRT3_2 = math.sqrt(3.0) / 2.0
 _NOT_FINISHED = "#b0b0b0"  # members whose run did not finish
