@@ -726,13 +726,16 @@ def _member_plot(store: Path, kind: str, args: argparse.Namespace, u: Any) -> An
     kw = dict(ro.integrate)
     t: Any = ro.t
     stored = str(df["status"].iloc[row]) if "status" in df.columns else None
-    if ro.task == "lifetime" and "t_reached" in df.columns:
+    if ro.task == "lifetime" and "t_reached" in df.columns and stored not in ("merger", "collision"):
         # the lifetime task follows a member in spans until its escape test holds; the picture runs
-        # one integration over the same span (to the time the member's run ended)
+        # one integration over the same span (to the time the member's run ended, not beyond: an
+        # escaper would fly off the picture). A merger or a contact ends the rerun by itself.
         t = repr(float(df["t_reached"].iloc[row]))
     where = f"member {member}" + (f" (x = {df['x'].iloc[row]:.4g}, y = {df['y'].iloc[row]:.4g})"
                                   if "x" in df.columns else "")
-    shown = ", ".join(f"{k} {v}" for k, v in kw.items())
+    from .report import _number_text
+
+    shown = ", ".join(f"{k} {_number_text(v)}" for k, v in kw.items())
     print(f"{kind}: {where} of {store}, t = {float(t):g}, {ro.precision}, {shown}"
           + (f", radii {radii}" if radii is not None else ""), flush=True)
     if kind == "orbit":
@@ -745,7 +748,17 @@ def _member_plot(store: Path, kind: str, args: argparse.Namespace, u: Any) -> An
         r = integrate(system, t, times=times, **kw)
         if r.trajectory is None:
             raise _Failed(f"{where}: the integration stopped before the first output ({r.status})")
-        pos = np.concatenate([system.positions[None], r.trajectory.positions, r.system.positions[None]])
+        path = r.trajectory.positions
+        if not r.success and len(path) < 100:
+            # stopped early (a merger, a contact): draw the span it covered, at 1000 output times
+            from .precision import to_fraction
+
+            span = to_fraction(r.system.limbs("time")) - to_fraction(system.limbs("time"))
+            if span != 0:
+                again = integrate(system, span, times=[span * Fraction(k, 1000) for k in range(1, 1000)], **kw)
+                if again.trajectory is not None and len(again.trajectory) > len(path):
+                    path = again.trajectory.positions
+        pos = np.concatenate([system.positions[None], path, r.system.positions[None]])
         ended = f"ended {r.status} at t = {r.t:.4g}"
         print(f"  the rerun {ended}" + (f"; the store records status {stored}" if stored else ""))
         return plots.orbit_plot(pos, units=u, title=args.title or f"Orbits of {where}, {ro.precision} ({ended})")

@@ -337,6 +337,15 @@ def _outline(ax: Any, table: Any, mask: np.ndarray, colour: str, u: AxisUnits) -
 _IRREVERSIBLE = "outline:red"
 
 
+def _axes_title(ax: Any, text: str, fontsize: float = 11) -> None:
+    """An axes title wrapped to the figure's width (a long title is never clipped)."""
+    import textwrap
+
+    width_pt = ax.figure.get_figwidth() * 72.0 * 0.9
+    chars = max(20, int(width_pt / (0.55 * fontsize)))
+    ax.set_title("\n".join(textwrap.wrap(text, chars)) or text, fontsize=fontsize)
+
+
 def _ending_counts(ended: np.ndarray, kinds: np.ndarray | None) -> dict:
     """How the members' lifetimes ended: {"escaped": k, "merged": k, "collided": k, ...}; an escape
     count always, the others when non-zero (a merger is never called an escape)."""
@@ -631,7 +640,7 @@ def delta_histogram(
     ax.set_xlabel("log10 delta: phase-space distance after the round trip (N-body units)")
     ax.set_ylabel("members")
     ax.legend(fontsize=8)
-    ax.set_title(title or "Round-trip distance to the start", fontsize=11)
+    _axes_title(ax, title or "Round-trip distance to the start")
     return fig
 
 
@@ -696,7 +705,7 @@ def lifetime_histogram(
     ax.set_xlabel(u.time("time to the first escape or merger" if any_merger else "time to the first escape"))
     ax.set_ylabel("members")
     ax.legend(fontsize=8)
-    ax.set_title(title or "Lifetimes of the free-fall triples", fontsize=11)
+    _axes_title(ax, title or "Lifetimes of the free-fall triples")
     return fig
 
 
@@ -743,7 +752,7 @@ def amplification_plot(
     if any(label for label, _c in items):
         ax.legend(fontsize=8)
     ax.grid(alpha=0.3)
-    ax.set_title(title or "Growth of a small perturbation", fontsize=11)
+    _axes_title(ax, title or "Growth of a small perturbation")
     return fig
 
 
@@ -819,7 +828,7 @@ def orbit_plot(
     ax.set_ylabel(u.length("y"))
     ax.grid(alpha=0.3)
     ax.legend(fontsize=8, loc="best")
-    ax.set_title(title or "Orbits (o start, x end)", fontsize=11)
+    _axes_title(ax, title or "Orbits (o start, x end)")
     return fig
 
 
