@@ -403,3 +403,16 @@ def test_every_panel_explains_its_flat_colours():
     fig = plots.reversibility_map({"f64": table, "dd": table})
     for ax in fig.axes[:2]:
         assert ax.get_legend() is not None
+
+
+def test_a_selection_of_members_remembers_their_numbers(tmp_path):
+    from loschmidt.demo import _selection
+
+    ens = ics.free_fall_grid(3, 5)
+    picked = np.array([7, 2])
+    sub = _selection(ens, picked)
+    np.testing.assert_array_equal(sub.params["grid_member"], picked)
+    np.testing.assert_array_equal(sub.positions, ens.positions[picked])
+    sweep = loschmidt.Sweep(sub, task="integrate", store=tmp_path / "qd", t=0.1, precision="f64", threads=1)
+    df = sweep.run(progress=False).results(columns=["member", "grid_member"])
+    assert list(df["member"]) == [0, 1] and list(df["grid_member"]) == [7, 2]
