@@ -69,10 +69,10 @@ class DemoSettings:
     label: str
 
 
-#: The default (~1 minute on 2 idle cores: about 55 CPU-seconds of dd round trips, 4 of f64 and
-#: 15 of lifetimes, measured at t = 10 with the chain method).
+#: The default: about 2 CPU-minutes (116 s user time measured on the 2-core x86_64 development
+#: machine; 64 s of wall-clock time when it was lightly loaded, 412 s under load average 14-18).
 FULL = DemoSettings(10, 17, 10.0, ("f64", "dd"), "chain", 200.0, 2.0, 8, 60.0, "full")
-#: ``--quick`` (~15-20 s): a coarser grid, the same physics.
+#: ``--quick`` (34 CPU-seconds, measured as above): a coarser grid, the same physics.
 QUICK = DemoSettings(5, 9, 10.0, ("f64", "dd"), "chain", 200.0, 2.0, 8, 60.0, "quick")
 
 _PRECISION_NAMES = {"f64": "double", "f64c": "compensated double", "dd": "double-double", "qd": "quad-double"}
