@@ -858,7 +858,8 @@ def _parser() -> argparse.ArgumentParser:
                        "region, round trips in f64 and dd, lifetimes, a map and a report.")
     d.add_argument("--out", default="loschmidt-demo", help="directory for the stores, pictures and report "
                    "(default ./loschmidt-demo)")
-    d.add_argument("--quick", action="store_true", help="a coarser grid: 32 triples instead of 120 (about 35 CPU-seconds instead of 2 CPU-minutes)")
+    d.add_argument("--quick", action="store_true", help="a coarser grid: 32 triples instead of 120 (about 35 "
+                   "CPU-seconds instead of 2 CPU-minutes)")
     d.add_argument("--qd", type=int, default=0, metavar="N",
                    help="also run quad-double round trips for up to N members dd left irreversible "
                    "(slow: 15-40 s each)")
