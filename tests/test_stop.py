@@ -96,9 +96,9 @@ def test_distance_factor_moves_the_stop() -> None:
 
 def test_no_stop_by_default_and_bits_unchanged() -> None:
     s = ics.pythagorean("dd")
-    plain = loschmidt.integrate(s, 70)
+    plain = loschmidt.integrate(s, 70, method="gbs")  # pinned: stop="escape" is gbs; the default is automatic
     checked = loschmidt.integrate(s, 50, stop="escape")  # before the escape: runs to the end
-    again = loschmidt.integrate(s, 50)
+    again = loschmidt.integrate(s, 50, method="gbs")
     assert plain.lifetime is None and checked.status == "success" and checked.lifetime is None
     for name in ("positions", "velocities"):
         assert np.array_equal(checked.system.limbs(name), again.system.limbs(name))
