@@ -38,7 +38,7 @@ _SUCCESS = np.array([STATUSES[i][0] in SUCCESS_STATUSES for i in range(len(STATU
 # validation
 
 
-def batch_options(t: Any, *, precision: str = "dd", method: str = "gbs", **options: Any) -> dict:
+def batch_options(t: Any, *, precision: str = "dd", method: str | None = None, **options: Any) -> dict:
     """Validate the options of a batch (as ``integrate`` does) and return them in a plain form.
 
     The result holds only JSON-friendly values (``t`` as its exact decimal string in the working
@@ -70,9 +70,11 @@ def batch_options(t: Any, *, precision: str = "dd", method: str = "gbs", **optio
     ('1.000000000000000055511151231257827021181583404541015625e-1', 1e-13, None)
     """
     prec = _p.check_precision(precision)
-    method = _o.check_method(method)
+    # None (automatic) stays None until the number of bodies is known (``_run``), unless the options
+    # decide; with none that only one method takes, both methods accept the same checks.
+    method = _o.resolve_method(method, None, options)
     t_limbs = _time_limbs(t, prec, "t")
-    settings = _o.resolve(options, method=method, precision=prec, entry="batch", t_limbs=t_limbs)
+    settings = _o.resolve(options, method=method or "chain", precision=prec, entry="batch", t_limbs=t_limbs)
     return {"t": str(_p.to_string(t_limbs, exact=True)), "precision": prec, "method": method,
             **settings.manifest("batch")}
 
@@ -235,10 +237,35 @@ class BatchResult:
         """(M,) bool: the run (both legs of a round trip) ended as asked."""
         return _SUCCESS[self.fields["status_code"]]
 
+    def reversible(self, threshold: float | None = None) -> np.ndarray:
+        """(M,) bool: round trips that came back, both legs finished and ``delta <= threshold``.
+
+        Parameters
+        ----------
+        threshold : float, optional
+            Largest ``delta`` that counts (default ``loschmidt.chaos.REVERSIBLE_THRESHOLD``, 1e-10,
+            a phase-space distance in N-body units).
+
+        Returns
+        -------
+        numpy.ndarray
+            False for every system of an ``integrate_batch`` (no round trip) and for NaN deltas.
+        """
+        from .chaos import REVERSIBLE_THRESHOLD, _positive
+
+        limit = REVERSIBLE_THRESHOLD if threshold is None else _positive(threshold, "threshold")
+        if self.task != "roundtrip":
+            raise ValueError("reversible: only a roundtrip_batch result has round trips")
+        with np.errstate(invalid="ignore"):
+            return self.success & (np.asarray(self.fields["delta"], dtype=float) <= limit)
+
     def __repr__(self) -> str:
         ok = int(np.count_nonzero(self.success))
-        return (f"BatchResult(task={self.task!r}, systems={len(self)}, bodies={self.n}, "
-                f"precision={self.precision!r}, succeeded={ok})")
+        text = (f"BatchResult(task={self.task!r}, systems={len(self)}, bodies={self.n}, "
+                f"precision={self.precision!r}, succeeded={ok}")
+        if self.task == "roundtrip":
+            text += f", reversible={int(np.count_nonzero(self.reversible()))}"
+        return text + ")"
 
     # -- systems -------------------------------------------------------------------------------------
     def systems(self, i: Any) -> dict:
@@ -317,6 +344,8 @@ def _run(task: str, masses: Any, positions: Any, velocities: Any, t: Any, option
     ml, x, v = _members(masses, positions, velocities, prec)
     n_threads = _threads(threads, ml.shape[0])
     t_limbs = _time_limbs(opts["t"], prec, "t")
+    opts["method"] = _o.resolve_method(opts["method"], ml.shape[1],
+                                       carries_radii=isinstance(masses, Ensemble) and masses.radii is not None)
     given = opts.get("radii")
     if isinstance(masses, Ensemble) and masses.radii is not None:
         _o.system_radii(masses.radii, opts["method"])  # refused with another method, as integrate does
@@ -392,7 +421,7 @@ def integrate_batch(
     velocities: Any = None,
     t: Any = None,
     *,
-    method: str = "gbs",
+    method: str | None = None,
     precision: str = "dd",
     threads: int | None = None,
     progress: Callable[[int], Any] | None = None,
@@ -419,8 +448,9 @@ def integrate_batch(
         Ensemble.
     t : number or decimal string
         Time span (of each leg, for a round trip).
-    method : {"gbs", "chain"}, optional
-        Integration method (default ``"gbs"``).
+    method : {None, "gbs", "chain"}, optional
+        Integration method; default None chooses by the number of bodies
+        (``loschmidt.options.resolve_method``: ``"chain"`` for few bodies).
     precision : {"f64", "f64c", "dd", "qd"}, optional
         Working precision (default ``"dd"``).
     threads : int, optional
@@ -459,7 +489,7 @@ def roundtrip_batch(
     velocities: Any = None,
     t: Any = None,
     *,
-    method: str = "gbs",
+    method: str | None = None,
     precision: str = "dd",
     threads: int | None = None,
     progress: Callable[[int], Any] | None = None,
@@ -480,8 +510,9 @@ def roundtrip_batch(
         Ensemble.
     t : number or decimal string
         Time span (of each leg, for a round trip).
-    method : {"gbs", "chain"}, optional
-        Integration method (default ``"gbs"``).
+    method : {None, "gbs", "chain"}, optional
+        Integration method; default None chooses by the number of bodies
+        (``loschmidt.options.resolve_method``: ``"chain"`` for few bodies).
     precision : {"f64", "f64c", "dd", "qd"}, optional
         Working precision (default ``"dd"``).
     threads : int, optional

@@ -30,6 +30,7 @@ from .integrate import DEFAULT_TOLERANCE, Result, integrate, phase_distances
 from .system import System
 
 __all__ = [
+    "REVERSIBLE_THRESHOLD",
     "RoundTrip",
     "roundtrip",
     "Amplification",
@@ -49,6 +50,14 @@ __all__ = [
 
 # ---------------------------------------------------------------------------------------------------
 # round trips
+
+#: Round-trip distance (phase-space distance of the returned state to the start, N-body units) at or
+#: below which a round trip counts as reversible: it "came back". Read by ``RoundTrip.reversible``,
+#: ``BatchResult.reversible``, the plots, the report, the demo and the command line. 1e-10 is ten
+#: orders of magnitude below the size of the system (order 1 in N-body units) and six above f64's
+#: round-off, so a double-precision integration of a regular orbit passes and one swamped by
+#: amplified round-off does not (common practice: a fixed absolute threshold on the Loschmidt test).
+REVERSIBLE_THRESHOLD = 1e-10
 
 
 @dataclass(frozen=True)
@@ -92,13 +101,13 @@ class RoundTrip:
         """Both legs finished."""
         return self.forward.success and self.backward is not None and self.backward.success
 
-    def reversible(self, threshold: float = 1e-10) -> bool:
+    def reversible(self, threshold: float = REVERSIBLE_THRESHOLD) -> bool:
         """Whether the start was recovered.
 
         Parameters
         ----------
         threshold : float, optional
-            Largest ``delta`` that counts (default 1e-10).
+            Largest ``delta`` that counts (default ``REVERSIBLE_THRESHOLD``, 1e-10).
 
         Returns
         -------

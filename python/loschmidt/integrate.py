@@ -22,6 +22,8 @@ from .system import System
 
 __all__ = [
     "METHODS",
+    "CHAIN_MAX_BODIES",
+    "resolve_method",
     "DEFAULT_TOLERANCE",
     "integrate",
     "Result",
@@ -346,6 +348,8 @@ def _time_limbs(t: Any, prec: str, name: str) -> np.ndarray:
 # The checks of the options live in loschmidt.options; these names stay for the modules that used them.
 check_tolerance = _o.check_tolerance
 _check_method = _o.check_method
+resolve_method = _o.resolve_method
+CHAIN_MAX_BODIES = _o.CHAIN_MAX_BODIES
 
 
 def _output_times(times: Any, t: np.ndarray, prec: str) -> np.ndarray:
@@ -375,7 +379,7 @@ def _output_times(times: Any, t: np.ndarray, prec: str) -> np.ndarray:
 def integrate(
     system: System,
     t: Any,
-    method: str = "gbs",
+    method: str | None = None,
     *,
     times: Sequence[Any] | None = None,
     merge: bool = False,
@@ -390,7 +394,9 @@ def integrate(
         method ``"chain"``.
     t : number or decimal string
         Span of the integration, converted exactly to the working precision.
-    method : {"gbs", "chain"}
+    method : {None, "gbs", "chain"}, optional
+        Default None: chosen by ``resolve_method`` (``"chain"`` for at most ``CHAIN_MAX_BODIES``
+        bodies, ``"gbs"`` above that; an option or radii only one method takes choose it).
         ``"gbs"``: Gragg-Bulirsch-Stoer extrapolation with order and step control, in the bodies'
         coordinates. ``"chain"``: the same extrapolation over a regularized leapfrog in chain
         coordinates (Mikkola & Aarseth 1993; Mikkola & Tanikawa 1999): close encounters and
@@ -431,7 +437,7 @@ def integrate(
     if not isinstance(system, System):
         raise TypeError(f"system: expected a loschmidt.System, got {type(system).__name__}")
     prec = system.precision
-    method = _o.check_method(method)
+    method = _o.resolve_method(method, system.n, options, carries_radii=system.radii is not None)
     t_limbs = _time_limbs(t, prec, "t")
     settings = _o.resolve(options, method=method, precision=prec, entry="integrate", t_limbs=t_limbs)
     radii = _o.system_radii(system.radii, method)

@@ -498,8 +498,11 @@ class Sweep:
         from tqdm import tqdm
 
         initial = sum(self.store.chunk_info(i)["rows"] for i in finished)
-        bar = tqdm(total=self._total, initial=initial, unit="system", desc=f"sweep {self.task.name}",
-                   disable=not progress, smoothing=0.05, dynamic_ncols=True, file=sys.stderr)
+        # the bar counts members kept (written to the store), never members still running, and its
+        # rate (hence the ETA) is the average since this run began: chunks finish in lumps, and a
+        # moving average over them swung the early ETA to twice the real time
+        bar = tqdm(total=self._total, initial=initial, unit="system", desc=f"sweep {self.task.name} (kept)",
+                   disable=not progress, smoothing=0, dynamic_ncols=True, file=sys.stderr)
         stop = _StopRequest(bar.write if progress else (lambda msg: print(msg, file=sys.stderr)))
         try:
             with stop:
@@ -544,15 +547,13 @@ class Sweep:
         for index, start, chunk, digest in todo:
             if stop.requested:
                 return
-            seen = [0]
-
-            def advance(done: int, seen: list = seen) -> None:
-                bar.update(done - seen[0])
-                seen[0] = done
+            def advance(done: int, size: int = len(chunk)) -> None:
+                bar.set_postfix_str(f"running chunk: {done}/{size}", refresh=True)
 
             cols = _run_chunk(self.task.run, chunk, self._runtime_options(self.threads, advance))
             self._write(index, start, chunk, digest, cols)
-            bar.update(len(chunk) - seen[0])
+            bar.set_postfix_str("", refresh=False)
+            bar.update(len(chunk))
 
     def _run_pool(self, todo: Iterator, bar: Any, stop: _StopRequest) -> None:
         pool = _pool(self._backend, self.executor)

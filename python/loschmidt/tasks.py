@@ -254,6 +254,7 @@ def run_amplification(chunk: Any, options: Mapping[str, Any]) -> dict:
     prec = opts["precision"]
     ml, x, v = _members(chunk, None, None, prec)
     count, n = ml.shape[:2]
+    opts["method"] = _o.resolve_method(opts["method"], n)
     if body >= n:
         raise ValueError(f"body: expected an index below the {n} bodies, got {body}")
     twin = x.copy()
