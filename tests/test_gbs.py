@@ -178,7 +178,7 @@ def test_observed_order_grows_with_columns() -> None:
     for k in (1, 2, 3, 4, 5, 6, 7):
         errs = []
         for steps in (64, 128):
-            r = loschmidt.integrate(s, t, fixed_step=t / steps, max_order=k)
+            r = loschmidt.integrate(s, t, method="gbs", fixed_step=t / steps, max_order=k)
             assert r.success and r.steps == steps and r.rejected == 0, (k, steps, r.steps, r.rejected)
             errs.append(relative_error_vs_kepler(r.system, 0.3, mpmath.mpf(t)))
         assert errs[1] > 1e-26, (k, errs)  # still far above the dd round-off floor
@@ -271,7 +271,7 @@ def test_head_on_collision_ends_with_step_underflow(precision: str) -> None:
     # steps shrink without end on the way in; in dd and qd they stay above the first step floor
     # for millions of steps, so the second floor (a tiny fraction of the mean step) must end it.
     s = loschmidt.System([1, 1], [[0, 0], [1, 0]], [[0, 0], [0, 0]], precision=precision)
-    r = loschmidt.integrate(s, 2)
+    r = loschmidt.integrate(s, 2, method="gbs")  # pinned: the default is automatic (chain for two bodies)
     assert r.status == "step_underflow", r.status
     assert r.steps <= 5000
     assert abs(r.t - math.pi / 4) < 1e-8

@@ -1,16 +1,16 @@
 // Integration and diagnostics entry points, one registration per (scalar, compensation) pair.
-// The Python layer (loschmidt.integrate) validates everything first; this layer only converts limbs,
-// releases the GIL, runs the engine and hands back limbs, the status and the statistics.
+// The Python layer (loschmidt.options, loschmidt.engine) validates everything first and passes the
+// engine's own Options and ChainOptions (types.hpp); this layer converts limbs, releases the GIL,
+// runs the one method dispatch (methods/dispatch.hpp) and hands back a RunRecord.
 #pragma once
 #include <string>
 #include <vector>
 
 #include "interrupt.hpp"
 #include "limbs.hpp"
-#include "options.hpp"
+#include "types.hpp"
 #include "loschmidt/batch.hpp"
-#include "loschmidt/methods/chain.hpp"
-#include "loschmidt/methods/gbs.hpp"
+#include "loschmidt/methods/dispatch.hpp"
 #include "loschmidt/methods/status.hpp"
 #include "loschmidt/nbody/diagnostics.hpp"
 #include "loschmidt/nbody/state.hpp"
@@ -47,22 +47,16 @@ py::dict diagnostics_dict(const State<T>& s) {
 // The fields every integration entry point returns: final limbs, status, counters and the relative
 // energy error |E1 - E0| / |E0| computed in the working precision (absolute when E0 = 0).
 template <class T>
-py::dict run_summary(const State<T>& s, const T& t, const Stats& st, const T& e0) {
-  using std::abs;
-  const T e1 = energy(s);
-  const T de = detail::relative_energy_error(e1, e0);  // +inf when an energy is not finite
+RunRecord run_record(const State<T>& s, const T& t, const Stats& st, const T& e0) {
+  const T de = detail::relative_energy_error(energy(s), e0);  // +inf when an energy is not finite
   const py::ssize_t n = s.n;
-  py::dict d;
-  d["positions"] = write_limbs<T>(s.x, {n, 3});
-  d["velocities"] = write_limbs<T>(s.v, {n, 3});
-  d["t"] = scalar_limbs(t);
-  d["status"] = static_cast<int>(st.status);
-  d["steps"] = st.steps;
-  d["rejected"] = st.rejected;
-  d["evaluations"] = st.evaluations;
-  d["wall_time"] = st.wall_time;
-  d["energy_error"] = to_double(de);
-  return d;
+  RunRecord r;
+  r.positions = write_limbs<T>(s.x, {n, 3});
+  r.velocities = write_limbs<T>(s.v, {n, 3});
+  r.t = scalar_limbs(t);
+  r.stats = st;
+  r.energy_error = to_double(de);
+  return r;
 }
 
 template <class T, bool Compensated>
@@ -75,28 +69,18 @@ void register_engine(py::module_& m, const std::string& suffix) {
         py::arg("masses"), py::arg("positions"), py::arg("velocities"));
 
   m.def(("integrate_" + suffix).c_str(),
-        [](const std::string& method, const limb_array& masses, const limb_array& positions,
-           const limb_array& velocities, const limb_array& t_end, const limb_array& times, double rtol,
-           double atol, long long max_steps, double max_wall_time, int max_order, double initial_step,
-           const std::vector<double>& radii, int regularization, int pn, const std::vector<double>& c,
-           double merger_factor, int stop, int check_every, double distance_factor, double fixed_step) {
+        [](const std::string& method_name, const limb_array& masses, const limb_array& positions,
+           const limb_array& velocities, const limb_array& t_end, const limb_array& times, const Options& options,
+           const ChainOptions& chain) {
+          const Method method = method_from_name(method_name);
           State<T> s = read_state<T>(masses, positions, velocities);
           const std::vector<T> tend = read_limbs<T>(t_end, {}, "t");
           if (tend.size() != 1) throw py::value_error("t: expected one value");
           const std::vector<T> outs = read_limbs<T>(times, {}, "times");
-          if (method != "gbs" && method != "chain")
-            throw py::value_error("method: unknown method '" + method + "'");
-          if (!radii.empty() && radii.size() != static_cast<size_t>(s.n))
+          if (!chain.radii.empty() && chain.radii.size() != static_cast<size_t>(s.n))
             throw py::value_error("radii: expected one radius per body");
-          if (regularization < 0 || regularization > 1)
-            throw py::value_error("regularization: unknown regularization");
-          if (pn < 0 || pn > pn_all) throw py::value_error("pn: unknown post-Newtonian orders");
-          if (pn != 0 && method != "chain") throw py::value_error("pn: post-Newtonian terms need method 'chain'");
-          if (pn != 0 && c.size() != static_cast<size_t>(scalar_traits<T>::limbs))
+          if (chain.pn_orders != 0 && chain.light_speed.size() != static_cast<size_t>(scalar_traits<T>::limbs))
             throw py::value_error("c: expected the limbs of the speed of light");
-          // Stop condition and fixed-step mode: gbs only (validated again by the engine).
-          if (stop != 0 && method != "gbs") throw py::value_error("stop: stop conditions need method 'gbs'");
-          if (fixed_step != 0.0 && method != "gbs") throw py::value_error("fixed_step: needs method 'gbs'");
 
           const py::ssize_t n = s.n;
           std::vector<T> traj_t, traj_x, traj_v;
@@ -110,50 +94,35 @@ void register_engine(py::module_& m, const std::string& suffix) {
           };
 
           interrupt_poll poll;
-          Options opt = base_options(rtol, atol, max_steps, max_wall_time, max_order, initial_step);
-          opt.stop = static_cast<StopCondition>(stop);
-          opt.check_every = check_every;
-          opt.distance_factor = distance_factor;
-          opt.fixed_step = fixed_step;
+          Options opt = options;
           opt.poll = [&poll]() { return poll(); };
+          ChainReport report;
+          ChainOptions copt = chain;
+          if (method == Method::chain) copt.report = &report;
 
           T t = T(0);
           const T e0 = energy(s);
           Stats st;
-          ChainReport report;
           {
+            // std::invalid_argument from the engine's checks reaches Python as ValueError.
             py::gil_scoped_release nogil;
-            if (method == "gbs") {
-              st = integrate_gbs<T, Compensated>(s, t, tend[0], outs, on_output, opt);
-            } else {
-              ChainOptions copt;
-              copt.radii = radii;
-              copt.regularization = static_cast<ChainRegularization>(regularization);
-              copt.report = &report;
-              copt.pn_orders = pn;
-              copt.light_speed = c;
-              copt.merger_factor = merger_factor;
-              st = integrate_chain<T, Compensated>(s, t, tend[0], outs, on_output, opt, copt);
-            }
+            st = integrate<T, Compensated>(method, s, t, tend[0], outs, on_output, opt, copt);
           }
           if (poll.signalled()) throw py::error_already_set();
-          py::dict d = run_summary(s, t, st, e0);
+          RunRecord r = run_record(s, t, st, e0);
           // With post-Newtonian terms: the error of the energy bookkeeping (ChainReport).
-          if (pn != 0) d["energy_error"] = report.pn_energy_error;
-          d["collision_pair"] = py::make_tuple(report.collision_i, report.collision_j);
-          d["rechains"] = report.rechains;
+          if (chain.pn_orders != 0) r.energy_error = report.pn_energy_error;
+          r.collision_i = report.collision_i;
+          r.collision_j = report.collision_j;
+          r.rechains = report.rechains;
           const auto count = static_cast<py::ssize_t>(traj_t.size());
-          d["trajectory_t"] = write_limbs<T>(traj_t, {count});
-          d["trajectory_positions"] = write_limbs<T>(traj_x, {count, n, 3});
-          d["trajectory_velocities"] = write_limbs<T>(traj_v, {count, n, 3});
-          return d;
+          r.trajectory_t = write_limbs<T>(traj_t, {count});
+          r.trajectory_positions = write_limbs<T>(traj_x, {count, n, 3});
+          r.trajectory_velocities = write_limbs<T>(traj_v, {count, n, 3});
+          return r;
         },
         py::arg("method"), py::arg("masses"), py::arg("positions"), py::arg("velocities"), py::arg("t_end"),
-        py::arg("times"), py::arg("rtol"), py::arg("atol"), py::arg("max_steps"), py::arg("max_wall_time"),
-        py::arg("max_order"), py::arg("initial_step"), py::arg("radii") = std::vector<double>{},
-        py::arg("regularization") = 0, py::arg("pn") = 0, py::arg("c") = std::vector<double>{},
-        py::arg("merger_factor") = 8.0, py::arg("stop") = 0, py::arg("check_every") = 10,
-        py::arg("distance_factor") = 10.0, py::arg("fixed_step") = 0.0);
+        py::arg("times"), py::arg("options"), py::arg("chain"));
 }
 
 }  // namespace loschmidt::bind

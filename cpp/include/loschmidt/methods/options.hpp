@@ -19,11 +19,25 @@ enum class StepSequence : int {
                     // accuracy (Kepler e = 0.9, f64 and dd; Pythagorean problem, dd).
 };
 
-// What ends a run early besides the budgets (Options::stop).
+// What ends a run early besides the budgets (Options::stop): a set of conditions, one bit each;
+// any one of them ends the run with Status::stop_condition. Tested by methods/stop.hpp, which is
+// the one place a new condition is implemented (a pair-distance stop for scattering, say: its bit
+// here, its parameters in Options, its test in StopMonitor::met).
 enum class StopCondition : int {
   none = 0,
   escape = 1  // a body escapes (nbody/escape.hpp)
 };
+// Every defined condition; anything else is refused by validate (methods/validate.hpp).
+inline constexpr int stop_conditions_known = static_cast<int>(StopCondition::escape);
+
+constexpr StopCondition operator|(StopCondition a, StopCondition b) {
+  return static_cast<StopCondition>(static_cast<int>(a) | static_cast<int>(b));
+}
+// condition is in the set
+constexpr bool stops_on(StopCondition set, StopCondition condition) {
+  return (static_cast<int>(set) & static_cast<int>(condition)) != 0;
+}
+constexpr bool known_stop(StopCondition set) { return (static_cast<int>(set) & ~stop_conditions_known) == 0; }
 
 struct Options {
   // Scaled error norm: sc_i = atol + rtol * max(|y0_i|, |y1_i|) over positions and velocities;
@@ -32,8 +46,10 @@ struct Options {
   // with atol = 0); a nonzero error on a zero scale counts as infinite.
   double rtol = 1e-12;
   double atol = 0.0;
-  // Budget of attempted (accepted + rejected) macro steps.
-  long long max_steps = 10000000;
+  // Budget of attempted (accepted + rejected) macro steps. The default is high enough never to
+  // end a useful run (1e9 steps take hours) and low enough that a run that cannot progress ends;
+  // Python reads it from here (options.DEFAULT_MAX_STEPS).
+  long long max_steps = 1000000000;
   // Wall-clock budget in seconds; 0 means none.
   double max_wall_time = 0.0;
   // Largest number of rows of the extrapolation tableau (the order reached is 2 * rows); 0 means
@@ -51,24 +67,28 @@ struct Options {
   // Cartesian coordinates, where in dd or qd the steps shrink for millions of steps while staying
   // above the first floor (a head-on collision from rest in dd: 10 million steps in 20 s without
   // reaching it). 2^-50 (about 1e-15) is far below the step of any close encounter the gbs method
-  // can integrate usefully (use the chain method there); 0 switches the test off.
+  // can integrate usefully (use the chain method there); 0 switches the test off. The chain
+  // method, whose steps are fictitious-time steps, applies it to the physical time instead: after
+  // 1000 accepted steps, a mean advance of t per step below min_step_ratio times the requested
+  // span ends the run (RunBudget::crawling_in_time).
   double min_step_ratio = 0x1p-50;
   // Called every few milliseconds (at a step boundary); returning true stops the run with
   // Status::interrupted. Empty means never called.
   std::function<bool()> poll;
   // Substep sequence of the extrapolation tableau.
   StepSequence sequence = StepSequence::consecutive;
-  // Stop condition, tested in double every check_every accepted steps (gbs only): escape ends the
-  // run with Status::stop_condition (and t the time reached) as soon as a body escapes by the
-  // practical test of nbody/escape.hpp, with distance_factor its k.
+  // Stop conditions (a set; methods/stop.hpp), tested in double every check_every accepted steps
+  // by every method: escape ends the run with Status::stop_condition (and t the time reached) as
+  // soon as a body escapes by the practical test of nbody/escape.hpp, with distance_factor its k.
   StopCondition stop = StopCondition::none;
   int check_every = 10;
   double distance_factor = 10.0;
-  // Fixed-step mode (gbs only; for measuring the order of the method): when > 0, every step has
-  // this magnitude (the sign follows the direction; the step before each output time and t_end is
-  // shortened to land on it), uses exactly max_order rows of the tableau (any number >= 1 here;
-  // 0 means the default), and is always accepted: no error control, no order control, no step
-  // floor. initial_step is not used.
+  // Fixed-step mode (every method; for measuring the order of the method): when > 0, every step
+  // has this magnitude (the sign follows the direction; the step before each output time and
+  // t_end is shortened to land on it), uses exactly max_order rows of the tableau (any number
+  // >= 1 here; 0 means the default), and is always accepted: no error control, no order control,
+  // no step floor. initial_step is not used. The chain method reads it, like initial_step, as a
+  // physical time: its fixed fictitious step is U(0) times it (chain.hpp).
   double fixed_step = 0.0;
 };
 
@@ -78,6 +98,10 @@ struct Stats {
   long long rejected = 0;     // rejected macro steps
   long long evaluations = 0;  // force (right-hand side) evaluations
   double wall_time = 0.0;     // seconds spent inside the integrator
+  // Status::stop_condition: the condition met and the body (stop_i; the escaper for escape) or
+  // pair (stop_i < stop_j) that met it; none and -1 otherwise.
+  StopCondition stopped_by = StopCondition::none;
+  int stop_i = -1, stop_j = -1;
 };
 
 }  // namespace loschmidt
