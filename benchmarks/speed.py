@@ -18,6 +18,7 @@ figures are medians over the members. Members: ``loschmidt.ics.free_fall_random(
 loschmidt imports, else fixed points of the Agekyan-Anosova region.
 
     python -m benchmarks.speed [--quick] [--baseline REV] [--members N] [--t-dd T] [--t-qd T]
+    python benchmarks/speed.py ...   (the same, as a script)
 """
 
 from __future__ import annotations
@@ -26,11 +27,16 @@ import argparse
 import json
 import statistics
 import subprocess
+import sys
 import tarfile
 import tempfile
 from pathlib import Path
 
-from . import machine
+if __package__:
+    from . import machine
+else:  # run as a script (python benchmarks/speed.py): import the package from the source tree
+    sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
+    from benchmarks import machine
 
 __all__ = ["chain_ops", "measure", "figures", "main"]
 
