@@ -7,7 +7,7 @@ double-double and quad-double precision, and tell converged, reversible solution
 from __future__ import annotations
 
 from . import _core
-from . import ics, orbits, precision, units
+from . import ics, orbits, precision, scattering, units
 from .ensemble import Ensemble
 from .chaos import (
     Convergence,

@@ -23,6 +23,12 @@ Ensembles:
 - :func:`free_fall_grid`, :func:`free_fall_random` the free-fall problem over the Agekyan-Anosova
   region (Agekyan & Anosova 1967).
 - :func:`virial_triples` random triples in virial equilibrium with a chosen angular momentum.
+
+Scattering (defined in :mod:`loschmidt.scattering`, listed here with the other families):
+
+- :func:`binary_single` one binary-single encounter, the incomer on its exact hyperbola from
+  infinity; :func:`binary_single_ensemble` seeded encounters with impact parameters uniform in
+  area (Hut & Bahcall 1983, ApJ 268, 319).
 """
 
 from __future__ import annotations
@@ -53,6 +59,8 @@ __all__ = [
     "free_fall_random",
     "free_fall_region",
     "virial_triples",
+    "binary_single",
+    "binary_single_ensemble",
 ]
 
 _BATCH = 4096  # candidates drawn per batch by the seeded families (fixed: results do not depend on n)
@@ -1060,3 +1068,7 @@ def virial_triples(
         family="virial_triples",
         meta={"seed": seed, "energy": E, "planar": bool(planar)},
     )
+
+
+# the scattering family lives in its own module (it imports this module's helpers when called)
+from .scattering import binary_single, binary_single_ensemble  # noqa: E402
