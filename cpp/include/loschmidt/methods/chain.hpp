@@ -51,12 +51,14 @@
 #include <utility>
 #include <vector>
 
+#include <loschmidt/methods/budget.hpp>
 #include <loschmidt/methods/chain_coordinates.hpp>
 #include <loschmidt/methods/extrapolation.hpp>
 #include <loschmidt/methods/leapfrog.hpp>
 #include <loschmidt/methods/options.hpp>
 #include <loschmidt/methods/status.hpp>
 #include <loschmidt/methods/step_control.hpp>
+#include <loschmidt/methods/validate.hpp>
 #include <loschmidt/nbody/state.hpp>
 #include <loschmidt/scalar/compensated.hpp>
 #include <loschmidt/scalar/traits.hpp>
@@ -102,102 +104,27 @@ struct ChainOptions {
 
 namespace chain {
 
-// One macro step of extrapolation over the regularized leapfrog: like ExtrapolationStepper
-// (step_control.hpp), whose monitor logic attempt() repeats, but with the chain error norm
-// (per-vector, see the file comment) and a fixed-row evaluation for Newton landing and contact
-// location that leaves the controller alone.
+// The chain method's error norm, the Norm policy of ExtrapolationStepper (step_control.hpp):
+// RMS over the groups X_k, W_k (Euclidean norm of each 3-vector, scaled by atol + rtol *
+// max(|X_k(0)|, |X_k(H)|)), the time increment (scaled by atol + rtol |dt|), B and omega (see the
+// file comment). It reads only the components of the layout, so a vector extended beyond
+// layout.dim() (passive components such as tangent equations) is judged by the orbit alone.
 template <class T>
-class ChainStepper {
+class ChainNorm {
  public:
-  void setup(RegularizedLeapfrog<T>* sub, StepSequence seq, int max_rows, double rtol, double atol,
-             const StepControlTuning& tune) {
-    sub_ = sub;
-    lay_ = sub->layout();
-    dim_ = lay_.dim();
-    rows_ = std::min(max_rows, sequence_max_rows(seq));
-    n_ = step_sequence(seq, rows_);
-    tableau_.setup(dim_, n_);
-    ctrl_.setup(n_, rtol, tune);
-    rtol_ = rtol;
-    atol_ = atol;
-    // The tableau's own error estimate is not used (see row_error); a finite dummy scale keeps it
-    // cheap and free of early exits.
-    dummy_.rtol = 0.0;
-    dummy_.atol = 1.0;
-    dummy_.y0.assign(static_cast<std::size_t>(dim_), 0.0);
-    y0d_.assign(static_cast<std::size_t>(dim_), 0.0);
+  ChainNorm() = default;
+  ChainNorm(const ChainLayout& lay, double rtol, double atol) : lay_(lay), rtol_(rtol), atol_(atol) {}
+
+  void start_at(const T* y0, int) {
+    const int d = lay_.dim();
+    y0d_.resize(static_cast<std::size_t>(d));
+    for (int i = 0; i < d; ++i) y0d_[static_cast<std::size_t>(i)] = to_double(y0[i]);
   }
 
-  bool start_at(const T* y0) {
-    y0_ = y0;
-    for (int i = 0; i < dim_; ++i) y0d_[static_cast<std::size_t>(i)] = to_double(y0[i]);
-    return sub_->begin(y0);
-  }
-
-  // Controller-driven attempt (the monitor of HNW II.9, as in ExtrapolationStepper::attempt).
-  bool attempt(const T& H, bool progressive) {
-    const double habs = std::fabs(to_double(H));
-    const int k = ctrl_.target();
-    const bool after_reject = ctrl_.last_rejected();
-    progressive = progressive && !after_reject;
-    double err_prev = 0.0;
-    for (int j = 1; j <= k + 1; ++j) {
-      sub_->increment(y0_, H, n_[static_cast<std::size_t>(j)], tableau_.slot(j));
-      tableau_.add_row(j, dummy_);
-      used_ = j;
-      if (j == 1) continue;
-      const double err = row_error();
-      if (!std::isfinite(err) || (j > 2 && err >= std::max(4.0 * err_prev, 1.0))) {
-        ctrl_.diverged(habs);
-        return false;
-      }
-      err_prev = err;
-      ctrl_.record(j, err, habs);
-      if (progressive) {
-        if (err <= 1.0) return accept(j, habs);
-      } else if (j == k - 1 && !after_reject) {
-        if (err <= 1.0) return accept(j, habs);
-        if (ctrl_.hopeless(j, err)) return reject(j);
-      } else if (j >= k) {
-        if (err <= 1.0) return accept(j, habs);
-      }
-      if (j == k && ctrl_.hopeless(j, err)) return reject(j);
-    }
-    return reject(k + 1);
-  }
-
-  // Rows 1..rows at H (rows >= 2), no controller bookkeeping: the same function of H for every
-  // call, as Newton's method needs. Returns the last row's error (non-finite on failure).
-  double evaluate(const T& H, int rows) {
-    double err = 0.0;
-    for (int j = 1; j <= rows; ++j) {
-      sub_->increment(y0_, H, n_[static_cast<std::size_t>(j)], tableau_.slot(j));
-      tableau_.add_row(j, dummy_);
-      if (j >= 2) err = row_error();
-    }
-    used_ = rows;
-    return err;
-  }
-
-  const T* increment() const { return tableau_.diagonal(); }
-  int rows_used() const { return used_; }
-  OrderStepController& controller() { return ctrl_; }
-
- private:
-  bool accept(int kc, double habs) {
-    used_ = kc;
-    ctrl_.accepted(kc, habs);
-    return true;
-  }
-  bool reject(int kc) {
-    ctrl_.rejected(kc);
-    return false;
-  }
-
-  // ||T_{j,j} - T_{j,j-1}|| in the chain norm, from the tableau's slots 1 and 2 after add_row(j).
-  double row_error() const {
-    const T* best = tableau_.slot(1);
-    const T* next = tableau_.slot(2);
+  // ||T_{j,j} - T_{j,j-1}|| in the chain norm, from the tableau's slots 1 and 2 after extrapolate(j).
+  double operator()(const ExtrapolationTableau<T>& tab) const {
+    const T* best = tab.slot(1);
+    const T* next = tab.slot(2);
     const int L = lay_.links;
     double sum = 0.0;
     int groups = 0;
@@ -243,17 +170,15 @@ class ChainStepper {
     return std::isfinite(r) ? r : std::numeric_limits<double>::infinity();
   }
 
-  RegularizedLeapfrog<T>* sub_ = nullptr;
+ private:
   ChainLayout lay_;
-  const T* y0_ = nullptr;
-  int dim_ = 0, rows_ = 0, used_ = 0;
   double rtol_ = 0, atol_ = 0;
-  std::vector<int> n_;
-  ExtrapolationTableau<T> tableau_;
-  OrderStepController ctrl_;
-  ErrorScale dummy_;
   std::vector<double> y0d_;
 };
+
+// The one extrapolation stepper over the regularized leapfrog with the chain norm.
+template <class T>
+using ChainStepper = ExtrapolationStepper<T, RegularizedLeapfrog<T>, ChainNorm<T>>;
 
 }  // namespace chain
 
@@ -283,23 +208,12 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
   };
 
   // ---- validation (before any work)
-  s.require_consistent();
-  if (s.n < 1) throw std::invalid_argument("integrate_chain: need at least one body");
-  if (!isfinite(t) || !isfinite(t_end)) throw std::invalid_argument("integrate_chain: t and t_end must be finite");
-  if (!(opt.rtol >= 0) || !(opt.atol >= 0) || !(opt.rtol > 0 || opt.atol > 0))
-    throw std::invalid_argument("integrate_chain: rtol and atol must be >= 0 and not both zero");
-  if (opt.max_steps < 1) throw std::invalid_argument("integrate_chain: max_steps must be >= 1");
-  if (!(opt.max_wall_time >= 0)) throw std::invalid_argument("integrate_chain: max_wall_time must be >= 0");
-  if (!(opt.initial_step >= 0) || !std::isfinite(opt.initial_step))
-    throw std::invalid_argument("integrate_chain: initial_step must be finite and >= 0");
-  if (!(opt.min_step_fraction >= 0)) throw std::invalid_argument("integrate_chain: min_step_fraction must be >= 0");
+  validate_run("integrate_chain", s, t, t_end, output_times, opt);
   // Default row limit: 3/4 of the scalar's default, plus one (f64 7, dd 14, qd 25). Measured in
   // dd: through close pericentre passages the high-order, long steps conserve energy worse at the
   // same tolerance (e = 0.999, 100 periods, rtol 1e-28: 7e-26 at 18 rows, 6e-27 at 14, 5e-29 at 10),
   // and 14 rows cost no more force evaluations than 18; f64 and qd runs are unaffected.
-  const int rows = opt.max_order > 0 ? opt.max_order : scalar_traits<T>::default_max_order() * 3 / 4 + 1;
-  if (rows < 3 || rows > sequence_max_rows(copt.sequence))
-    throw std::invalid_argument("integrate_chain: max_order out of range for the step sequence");
+  const int rows = table_rows(opt, scalar_traits<T>::default_max_order() * 3 / 4 + 1, copt.sequence, "integrate_chain");
   {
     int positive = 0;
     for (const T& q : s.m) {
@@ -338,18 +252,6 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
       if (!(r >= 0) || !std::isfinite(r)) throw std::invalid_argument("integrate_chain: radii must be finite and >= 0");
   }
   const bool forward = t_end > t;
-  {
-    T prev = t;
-    for (const T& q : output_times) {
-      if (!isfinite(q)) throw std::invalid_argument("integrate_chain: output_times must be finite");
-      const bool ok = forward ? (q > prev || (q == prev && q != t)) && q <= t_end
-                              : (q < prev || (q == prev && q != t)) && q >= t_end;
-      if (!ok)
-        throw std::invalid_argument(
-            "integrate_chain: output_times must be sorted in the direction of integration and lie in (t, t_end]");
-      prev = q;
-    }
-  }
   if (t == t_end) return finish(Status::success);
   if (!s.finite()) return finish(Status::nonfinite);
 
@@ -435,16 +337,13 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
   }
 
   chain::ChainStepper<T> stepper;
-  stepper.setup(&sub, copt.sequence, rows, opt.rtol, opt.atol, copt.tuning);
+  stepper.setup(&sub, dim, copt.sequence, rows, opt.rtol, copt.tuning, chain::ChainNorm<T>(lay, opt.rtol, opt.atol));
   OrderStepController& ctrl = stepper.controller();
+  RunBudget<T> budget(opt, clock_start);
 
   const double dir = forward ? 1.0 : -1.0;
   const double span = std::fabs(to_double(t_end - t));
   const double eps = scalar_traits<T>::epsilon();
-  const double frac = opt.min_step_fraction > 0 ? opt.min_step_fraction : 16.0 * eps;
-  const double wall_limit = opt.max_wall_time;
-  const auto poll_interval = std::chrono::milliseconds(2);
-  auto last_poll = clock_start;
 
   auto finish_counted = [&](Status status) {
     st.evaluations = sub.evaluations;
@@ -483,14 +382,10 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
   }
   const double s_ref0 = ctrl.proposal();
   double s_total = 0.0;  // fictitious time covered (magnitude), for the step floor
-  // Physical-time floor: a run of stalled accepted steps, each advancing t by less than
-  // frac * |t| (so t itself hardly moves), ends with Status::step_underflow. A regularized
-  // close passage takes a few dozen such steps at most; ten thousand in a row mean t no longer
-  // advances at this precision (a binary whose period is below eps |t|: without this the run
-  // would spin until max_steps with t frozen). A span that is merely very long in orbits (a
-  // period 1e-100 of it) is not caught here: the budgets (max_steps, max_wall_time) end it.
-  long long stalled = 0;
-  constexpr long long stall_limit = 10000;
+  // Physical-time floor (RunBudget::stalled): a run of stalled accepted steps, each advancing t
+  // by less than frac * |t|, ends with Status::step_underflow (without it a binary whose period
+  // is below eps |t| would spin until max_steps with t frozen). A span that is merely very long
+  // in orbits (a period 1e-100 of it) is not caught there: the budgets end it.
 
   // Newton landing on t(H) = rem from the overshooting step (H_over, dt_over, dt/ds at its end).
   // First guess: the root of the cubic Hermite interpolant of t(s) on [0, H_over] built from
@@ -592,7 +487,6 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
   };
 
   Status status = Status::success;
-  long long attempts = 0;
   bool first = true;
 
   while (true) {
@@ -604,29 +498,12 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
     } else {
       const double hmag = ctrl.proposal();
       // ---- budgets, checked before each attempt
-      if (hmag < frac * std::max(s_total, s_ref0)) {
+      if (budget.below_floor(hmag, std::max(s_total, s_ref0))) {
         status = Status::step_underflow;
         break;
       }
-      if (attempts >= opt.max_steps) {
-        status = Status::max_steps;
-        break;
-      }
-      if (wall_limit > 0 || opt.poll) {
-        const auto now = clock::now();
-        if (wall_limit > 0 && std::chrono::duration<double>(now - clock_start).count() >= wall_limit) {
-          status = Status::max_wall_time;
-          break;
-        }
-        if (opt.poll && now - last_poll >= poll_interval) {
-          last_poll = now;
-          if (opt.poll()) {
-            status = Status::interrupted;
-            break;
-          }
-        }
-      }
-      ++attempts;
+      status = budget.next_attempt();
+      if (status != Status::success) break;
       const T H = T(dir * hmag);
       if (!stepper.attempt(H, first)) {
         ++st.rejected;
@@ -698,9 +575,7 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
         landed = true;
       } else {
         add_increment(stepper.increment());
-        const double tnow = std::fabs(to_double(time_now()));
-        stalled = std::fabs(to_double(dt_step)) < frac * tnow ? stalled + 1 : 0;
-        if (stalled >= stall_limit) {
+        if (budget.stalled(to_double(dt_step), to_double(time_now()))) {
           s_total += hmag;
           ++st.steps;
           status = Status::step_underflow;

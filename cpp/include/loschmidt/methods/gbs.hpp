@@ -26,11 +26,13 @@
 #include <utility>
 #include <vector>
 
+#include <loschmidt/methods/budget.hpp>
 #include <loschmidt/methods/extrapolation.hpp>
 #include <loschmidt/methods/options.hpp>
 #include <loschmidt/methods/status.hpp>
 #include <loschmidt/methods/step_control.hpp>
-#include <loschmidt/nbody/escape.hpp>
+#include <loschmidt/methods/stop.hpp>
+#include <loschmidt/methods/validate.hpp>
 #include <loschmidt/nbody/forces.hpp>
 #include <loschmidt/nbody/state.hpp>
 #include <loschmidt/scalar/compensated.hpp>
@@ -253,7 +255,7 @@ class NewtonianProblem {
 
 namespace detail {
 
-// The driver proper over a Problem (see above); arguments already validated (check_arguments).
+// The driver proper over a Problem (see above); arguments already validated (validate_run).
 // rows: the number of tableau rows (Options::max_order resolved).
 template <class T, bool Compensated, class Problem, class Observer>
 Stats run_extrapolation(Problem& pb, State<T>& s, T& t, const T& t_end, const std::vector<T>& output_times,
@@ -273,7 +275,6 @@ Stats run_extrapolation(Problem& pb, State<T>& s, T& t, const T& t_end, const st
   const bool fixed = opt.fixed_step > 0;
 
   // ---- setup (all allocation happens here)
-  const int n = s.n;
   const int dim = pb.dimension();
   const int norm_count = pb.norm_count();
   std::vector<T> y(static_cast<std::size_t>(dim));
@@ -284,36 +285,22 @@ Stats run_extrapolation(Problem& pb, State<T>& s, T& t, const T& t_end, const st
   Substep& sub = pb.substep();
   ExtrapolationStepper<T, Substep> stepper;
   // The fixed-step mode may use fewer than the controller's minimum of 3 rows.
-  stepper.setup(&sub, dim, opt.sequence, fixed ? std::max(rows, 3) : rows, opt.rtol, opt.atol, tune,
-                norm_count, pb.error_block(), pb.error_stride());
+  stepper.setup(&sub, dim, opt.sequence, fixed ? std::max(rows, 3) : rows, opt.rtol, tune,
+                ScaledRmsNorm<T>(opt.rtol, opt.atol, norm_count, pb.error_block(), pb.error_stride()));
   OrderStepController& ctrl = stepper.controller();
 
-  // Stop condition: the state in double, for the escape test.
-  const bool check_escape = opt.stop == StopCondition::escape;
-  std::vector<double> md(check_escape ? static_cast<std::size_t>(n) : 0);
-  std::vector<double> xd(check_escape ? 3 * static_cast<std::size_t>(n) : 0), vd(xd.size());
-  for (std::size_t i = 0; i < md.size(); ++i) md[i] = to_double(s.m[i]);
-  auto escaped = [&]() {
-    store();
-    for (std::size_t i = 0; i < xd.size(); ++i) {
-      xd[i] = to_double(s.x[i]);
-      vd[i] = to_double(s.v[i]);
-    }
-    return escaping_body(n, md.data(), xd.data(), vd.data(), opt.distance_factor) >= 0;
-  };
+  StopMonitor<T> stop;
+  stop.setup(opt, s);
+  RunBudget<T> budget(opt, clock_start);
 
   const double dir = forward ? 1.0 : -1.0;
   const double span = std::fabs(to_double(t_end - t));
-  const double frac = opt.min_step_fraction > 0 ? opt.min_step_fraction : 16.0 * scalar_traits<T>::epsilon();
   // Step floor: frac * max(|t|, |t_start|, |H_0|). Relative to |t| because below that t + H no
   // longer moves t; |t_start| and the first step's size |H_0| (the problem's own time scale) give
   // it a scale near t = 0. The span is deliberately not used: a long run must not forbid the
   // short steps of an early close encounter.
   double floor_scale = std::fabs(to_double(t));
   const T t_begin = t;  // for the mean step (Options::min_step_ratio)
-  const double wall_limit = opt.max_wall_time;
-  const auto poll_interval = std::chrono::milliseconds(2);
-  auto last_poll = clock_start;
 
   if (!stepper.start_at(y.data())) {
     st.evaluations = pb.evaluations();
@@ -331,7 +318,6 @@ Stats run_extrapolation(Problem& pb, State<T>& s, T& t, const T& t_end, const st
   std::size_t next_out = 0;
   const std::size_t n_out = output_times.size();
   bool first = true;
-  long long attempts = 0;
   Status status = Status::success;
 
   while (true) {
@@ -356,34 +342,16 @@ Stats run_extrapolation(Problem& pb, State<T>& s, T& t, const T& t_end, const st
 
     if (H != T(0)) {
       // ---- budgets, checked before each attempt
-      if (!fixed && !landing && !(hmag >= frac * std::max(std::fabs(to_double(t)), floor_scale))) {
+      if (!fixed && !landing && budget.below_floor(hmag, std::max(std::fabs(to_double(t)), floor_scale))) {
         status = Status::step_underflow;
         break;
       }
-      if (!fixed && !landing && opt.min_step_ratio > 0 && st.steps >= 1000 &&
-          hmag < opt.min_step_ratio * std::fabs(to_double(t - t_begin)) / static_cast<double>(st.steps)) {
+      if (!fixed && !landing && budget.crawling(hmag, std::fabs(to_double(t - t_begin)), st.steps)) {
         status = Status::step_underflow;  // shrinking without end: a collision singularity
         break;
       }
-      if (attempts >= opt.max_steps) {
-        status = Status::max_steps;
-        break;
-      }
-      if (wall_limit > 0 || opt.poll) {
-        const auto now = clock::now();
-        if (wall_limit > 0 && std::chrono::duration<double>(now - clock_start).count() >= wall_limit) {
-          status = Status::max_wall_time;
-          break;
-        }
-        if (opt.poll && now - last_poll >= poll_interval) {
-          last_poll = now;
-          if (opt.poll()) {
-            status = Status::interrupted;
-            break;
-          }
-        }
-      }
-      ++attempts;
+      status = budget.next_attempt();
+      if (status != Status::success) break;
       const int k_before = ctrl.target();
       if (fixed) {
         if (!stepper.fixed(H, rows)) {
@@ -432,10 +400,13 @@ Stats run_extrapolation(Problem& pb, State<T>& s, T& t, const T& t_end, const st
       }
       if (t == t_end) break;
     }
-    // ---- stop condition, every check_every accepted steps
-    if (check_escape && stepped && st.steps % opt.check_every == 0 && escaped()) {
-      status = Status::stop_condition;
-      break;
+    // ---- stop conditions, every check_every accepted steps
+    if (stepped && stop.due(st.steps)) {
+      store();
+      if (stop.met(s, st)) {
+        status = Status::stop_condition;
+        break;
+      }
     }
   }
   store();
@@ -451,44 +422,6 @@ Stats run_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& output_ti
   NewtonianProblem<T, D> pb(s);
   return run_extrapolation<T, Compensated>(pb, s, t, t_end, output_times, on_output, opt, tune, rows,
                                            clock_start);
-}
-
-// Validation shared by the entry points that use run_extrapolation (before any work): throws
-// std::invalid_argument naming the argument; returns the number of tableau rows. who: the name
-// of the entry point, for the messages.
-template <class T>
-int check_arguments(const char* who, const State<T>& s, const T& t, const T& t_end,
-                    const std::vector<T>& output_times, const Options& opt) {
-  using std::isfinite;
-  const std::string w(who);
-  auto fail = [&](const char* what) { throw std::invalid_argument(w + ": " + what); };
-  s.require_consistent();
-  if (s.n < 1) fail("need at least one body");
-  if (!isfinite(t) || !isfinite(t_end)) fail("t and t_end must be finite");
-  if (!(opt.rtol >= 0) || !(opt.atol >= 0) || !(opt.rtol > 0 || opt.atol > 0))
-    fail("rtol and atol must be >= 0 and not both zero");
-  if (opt.max_steps < 1) fail("max_steps must be >= 1");
-  if (!(opt.max_wall_time >= 0)) fail("max_wall_time must be >= 0");
-  if (!(opt.initial_step >= 0) || !std::isfinite(opt.initial_step)) fail("initial_step must be finite and >= 0");
-  if (!(opt.min_step_fraction >= 0)) fail("min_step_fraction must be >= 0");
-  if (!(opt.fixed_step >= 0) || !std::isfinite(opt.fixed_step)) fail("fixed_step must be finite and >= 0");
-  if (opt.stop != StopCondition::none && opt.stop != StopCondition::escape) fail("unknown stop condition");
-  if (opt.check_every < 1) fail("check_every must be >= 1");
-  if (!(opt.distance_factor >= 0) || !std::isfinite(opt.distance_factor))
-    fail("distance_factor must be finite and >= 0");
-  const int rows = opt.max_order > 0 ? opt.max_order : scalar_traits<T>::default_max_order();
-  if (rows < (opt.fixed_step > 0 ? 1 : 3) || rows > sequence_max_rows(opt.sequence))
-    fail("max_order out of range for the step sequence");
-  const bool forward = t_end > t;
-  T prev = t;
-  for (const T& q : output_times) {
-    if (!isfinite(q)) fail("output_times must be finite");
-    const bool ok = forward ? (q > prev || (q == prev && q != t)) && q <= t_end
-                            : (q < prev || (q == prev && q != t)) && q >= t_end;
-    if (!ok) fail("output_times must be sorted in the direction of integration and lie in (t, t_end]");
-    prev = q;
-  }
-  return rows;
 }
 
 // All z coordinates and z velocities exactly zero.
@@ -521,7 +454,8 @@ Stats integrate_gbs(State<T>& s, T& t, const T& t_end, const std::vector<T>& out
     return st;
   };
 
-  const int rows = detail::check_arguments("integrate_gbs", s, t, t_end, output_times, opt);
+  validate_run("integrate_gbs", s, t, t_end, output_times, opt);
+  const int rows = table_rows(opt, scalar_traits<T>::default_max_order(), opt.sequence, "integrate_gbs");
   if (t == t_end) return finish(Status::success);
   if (!s.finite()) return finish(Status::nonfinite);
 

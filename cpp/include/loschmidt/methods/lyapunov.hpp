@@ -187,7 +187,8 @@ Stats integrate_lyapunov(State<T>& s, T& t, const T& t_end, const std::vector<T>
     return st;
   };
 
-  const int rows = detail::check_arguments("integrate_lyapunov", s, t, t_end, output_times, opt);
+  validate_run("integrate_lyapunov", s, t, t_end, output_times, opt);
+  const int rows = table_rows(opt, scalar_traits<T>::default_max_order(), opt.sequence, "integrate_lyapunov");
   const std::size_t k = 3 * static_cast<std::size_t>(s.n);
   if (tangent_x.size() != k || tangent_v.size() != k)
     throw std::invalid_argument("integrate_lyapunov: the tangent needs 3n position and 3n velocity components");

@@ -19,11 +19,25 @@ enum class StepSequence : int {
                     // accuracy (Kepler e = 0.9, f64 and dd; Pythagorean problem, dd).
 };
 
-// What ends a run early besides the budgets (Options::stop).
+// What ends a run early besides the budgets (Options::stop): a set of conditions, one bit each;
+// any one of them ends the run with Status::stop_condition. Tested by methods/stop.hpp, which is
+// the one place a new condition is implemented (a pair-distance stop for scattering, say: its bit
+// here, its parameters in Options, its test in StopMonitor::met).
 enum class StopCondition : int {
   none = 0,
   escape = 1  // a body escapes (nbody/escape.hpp)
 };
+// Every defined condition; anything else is refused by validate (methods/validate.hpp).
+inline constexpr int stop_conditions_known = static_cast<int>(StopCondition::escape);
+
+constexpr StopCondition operator|(StopCondition a, StopCondition b) {
+  return static_cast<StopCondition>(static_cast<int>(a) | static_cast<int>(b));
+}
+// condition is in the set
+constexpr bool stops_on(StopCondition set, StopCondition condition) {
+  return (static_cast<int>(set) & static_cast<int>(condition)) != 0;
+}
+constexpr bool known_stop(StopCondition set) { return (static_cast<int>(set) & ~stop_conditions_known) == 0; }
 
 struct Options {
   // Scaled error norm: sc_i = atol + rtol * max(|y0_i|, |y1_i|) over positions and velocities;
@@ -58,17 +72,18 @@ struct Options {
   std::function<bool()> poll;
   // Substep sequence of the extrapolation tableau.
   StepSequence sequence = StepSequence::consecutive;
-  // Stop condition, tested in double every check_every accepted steps (gbs only): escape ends the
-  // run with Status::stop_condition (and t the time reached) as soon as a body escapes by the
-  // practical test of nbody/escape.hpp, with distance_factor its k.
+  // Stop conditions (a set; methods/stop.hpp), tested in double every check_every accepted steps
+  // by every method: escape ends the run with Status::stop_condition (and t the time reached) as
+  // soon as a body escapes by the practical test of nbody/escape.hpp, with distance_factor its k.
   StopCondition stop = StopCondition::none;
   int check_every = 10;
   double distance_factor = 10.0;
-  // Fixed-step mode (gbs only; for measuring the order of the method): when > 0, every step has
-  // this magnitude (the sign follows the direction; the step before each output time and t_end is
-  // shortened to land on it), uses exactly max_order rows of the tableau (any number >= 1 here;
-  // 0 means the default), and is always accepted: no error control, no order control, no step
-  // floor. initial_step is not used.
+  // Fixed-step mode (every method; for measuring the order of the method): when > 0, every step
+  // has this magnitude (the sign follows the direction; the step before each output time and
+  // t_end is shortened to land on it), uses exactly max_order rows of the tableau (any number
+  // >= 1 here; 0 means the default), and is always accepted: no error control, no order control,
+  // no step floor. initial_step is not used. The chain method reads it, like initial_step, as a
+  // physical time: its fixed fictitious step is U(0) times it (chain.hpp).
   double fixed_step = 0.0;
 };
 
@@ -78,6 +93,10 @@ struct Stats {
   long long rejected = 0;     // rejected macro steps
   long long evaluations = 0;  // force (right-hand side) evaluations
   double wall_time = 0.0;     // seconds spent inside the integrator
+  // Status::stop_condition: the condition met and the body (stop_i; the escaper for escape) or
+  // pair (stop_i < stop_j) that met it; none and -1 otherwise.
+  StopCondition stopped_by = StopCondition::none;
+  int stop_i = -1, stop_j = -1;
 };
 
 }  // namespace loschmidt

@@ -1,17 +1,25 @@
 // Order and step-size control of the extrapolation method by work per unit step (Deuflhard 1983;
-// HNW I, section II.9), and the macro step that drives a pluggable symmetric substep through the
-// tableau with the convergence monitor. Generic over a flat vector of T: the Newtonian Stormer
-// substep (gbs.hpp) and, later, a regularized leapfrog substep plug in unchanged.
+// HNW I, section II.9), and the one macro-step stepper of every extrapolation method: it drives a
+// pluggable symmetric substep through the tableau with the convergence monitor, and judges rows
+// by a pluggable error norm. Generic over a flat vector of T: the Newtonian Stormer substep
+// (gbs.hpp), its variational extension (lyapunov.hpp) and the regularized leapfrog in chain
+// coordinates (chain.hpp, with its own norm) all plug in unchanged.
 //
 // A Substep provides
 //   bool begin(const T* y0);                           // derivative data at y0; false if non-finite
 //   void increment(const T* y0, const T& H, int n, T* dy); // n symmetric substeps over H: dy = y(H)-y0
-// and its own evaluation counter. Step-control arithmetic is in double; H and the tableau are in T.
+// and its own evaluation counter. A Norm (the error-norm policy) provides
+//   void start_at(const T* y0, int dim);               // the step's start (e.g. its scale, in double)
+//   double operator()(const ExtrapolationTableau<T>& tab) const;
+//                                                      // ||T_{j,j} - T_{j,j-1}|| after extrapolate(j):
+//                                                      // slot(1) and slot(2); accepted at <= 1
+// Step-control arithmetic is in double; H and the tableau are in T.
 #pragma once
 
 #include <algorithm>
 #include <cmath>
 #include <stdexcept>
+#include <utility>
 #include <vector>
 
 #include <loschmidt/methods/extrapolation.hpp>
@@ -208,35 +216,52 @@ class OrderStepController {
   double next_ = 0.0;
 };
 
+// The default error norm: the scaled RMS of ErrorScale (extrapolation.hpp), sc_i = atol + rtol *
+// max(|y0_i|, |y1_i|) over the components it selects, averaged over count components.
+template <class T>
+class ScaledRmsNorm {
+ public:
+  ScaledRmsNorm() = default;
+  // count, block, stride: see ErrorScale (0: all components, averaged over the dimension).
+  ScaledRmsNorm(double rtol, double atol, int count = 0, int block = 0, int stride = 0) {
+    scale_.rtol = rtol;
+    scale_.atol = atol;
+    scale_.count = count;
+    scale_.block = block;
+    scale_.stride = stride;
+  }
+  void start_at(const T* y0, int dim) { scale_.start_at(y0, dim); }
+  double operator()(const ExtrapolationTableau<T>& tab) const { return tab.scaled_error(scale_); }
+
+ private:
+  ErrorScale scale_;
+};
+
 // One macro step of the extrapolation method over a pluggable substep, with the convergence
 // monitor of HNW II.9: build rows 1..k-1 (normal step) and check row k-1, then row k, then row k+1;
 // a progressive step (first step, step shortened to land on a time) checks every row from 2 on.
+// Besides the controller-driven attempt() it offers two evaluations that leave the controller
+// alone: fixed() (Options::fixed_step) and evaluate() (a fixed number of rows at any H, the same
+// function of H on every call, as Newton's method and root finding on a step need).
 // Allocation happens only in setup().
-template <class T, class Substep>
+template <class T, class Substep, class Norm = ScaledRmsNorm<T>>
 class ExtrapolationStepper {
  public:
-  // norm_count: components the error norm averages over (0: dim); see ErrorScale::count.
-  // error_block, error_stride: which components the norm covers (0: all); see ErrorScale::block.
-  void setup(Substep* substep, int dim, StepSequence seq, int max_rows, double rtol, double atol,
-             const StepControlTuning& tune, int norm_count = 0, int error_block = 0,
-             int error_stride = 0) {
+  void setup(Substep* substep, int dim, StepSequence seq, int max_rows, double rtol, const StepControlTuning& tune,
+             Norm norm) {
     sub_ = substep;
     dim_ = dim;
     rows_ = std::min(max_rows, sequence_max_rows(seq));
     n_ = step_sequence(seq, rows_);
     tableau_.setup(dim, n_);
     ctrl_.setup(n_, rtol, tune);
-    scale_.rtol = rtol;
-    scale_.atol = atol;
-    scale_.count = norm_count;
-    scale_.block = error_block;
-    scale_.stride = error_stride;
+    norm_ = std::move(norm);
   }
 
-  // Take y0 as the start of the next step: derivative data and error scale. False if non-finite.
+  // Take y0 as the start of the next step: derivative data and the norm's scale. False if non-finite.
   bool start_at(const T* y0) {
     y0_ = y0;
-    scale_.start_at(y0, dim_);
+    norm_.start_at(y0, dim_);
     return sub_->begin(y0);
   }
 
@@ -250,9 +275,10 @@ class ExtrapolationStepper {
     double err_prev = 0.0;
     for (int j = 1; j <= k + 1; ++j) {
       sub_->increment(y0_, H, n_[static_cast<std::size_t>(j)], tableau_.slot(j));
-      const double err = tableau_.add_row(j, scale_);
       used_ = j;
       if (j == 1) continue;
+      tableau_.extrapolate(j);
+      const double err = norm_(tableau_);
       if (!std::isfinite(err) || (j > 2 && err >= std::max(4.0 * err_prev, 1.0))) {
         ctrl_.diverged(habs);
         return false;
@@ -277,15 +303,18 @@ class ExtrapolationStepper {
   // is not finite.
   bool fixed(const T& H, int rows) {
     using std::isfinite;
-    for (int j = 1; j <= rows; ++j) {
-      sub_->increment(y0_, H, n_[static_cast<std::size_t>(j)], tableau_.slot(j));
-      tableau_.extrapolate(j);
-    }
-    used_ = rows;
+    build(H, rows);
     const T* dy = tableau_.diagonal();
     for (int i = 0; i < dim_; ++i)
       if (!isfinite(dy[i])) return false;
     return true;
+  }
+
+  // Rows 1..rows at H (1 <= rows <= max_rows()), no controller bookkeeping. Returns the norm of
+  // the last row's error estimate (0 for one row; non-finite on failure).
+  double evaluate(const T& H, int rows) {
+    build(H, rows);
+    return rows >= 2 ? norm_(tableau_) : 0.0;
   }
 
   const T* increment() const { return tableau_.diagonal(); }
@@ -295,6 +324,13 @@ class ExtrapolationStepper {
   const OrderStepController& controller() const { return ctrl_; }
 
  private:
+  void build(const T& H, int rows) {
+    for (int j = 1; j <= rows; ++j) {
+      sub_->increment(y0_, H, n_[static_cast<std::size_t>(j)], tableau_.slot(j));
+      tableau_.extrapolate(j);
+    }
+    used_ = rows;
+  }
   bool accept(int kc, double habs) {
     used_ = kc;
     ctrl_.accepted(kc, habs);
@@ -311,7 +347,7 @@ class ExtrapolationStepper {
   std::vector<int> n_;
   ExtrapolationTableau<T> tableau_;
   OrderStepController ctrl_;
-  ErrorScale scale_;
+  Norm norm_;
 };
 
 }  // namespace loschmidt
