@@ -108,8 +108,8 @@ def test_ensemble_bad_input() -> None:
 def test_ensemble_draws() -> None:
     from scipy import stats
 
-    ens = ics.binary_single_ensemble(250, 7, v_over_vc=[0.3, 3])
-    again = ics.binary_single_ensemble(250, 7, v_over_vc=[0.3, 3])
+    ens = ics.binary_single_ensemble(150, 7, v_over_vc=[0.3, 3])
+    again = ics.binary_single_ensemble(150, 7, v_over_vc=[0.3, 3])
     assert np.array_equal(ens.positions, again.positions) and np.array_equal(ens.velocities, again.velocities)
     p = ens.params
     for s in (0, 1):

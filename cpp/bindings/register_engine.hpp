@@ -65,6 +65,38 @@ py::dict run_summary(const State<T>& s, const T& t, const Stats& st, const T& e0
   return d;
 }
 
+// The event log as numpy columns: {"passages", "outer", "closest"} -> {"t", "i", "j", "distance"}.
+inline py::dict event_dict(const EventLog& log) {
+  auto columns = [](const std::vector<PairEvent>& ev) {
+    const auto count = static_cast<py::ssize_t>(ev.size());
+    py::array_t<double> t(count), dist(count);
+    py::array_t<long long> i(count), j(count);
+    auto tt = t.mutable_unchecked<1>();
+    auto dd = dist.mutable_unchecked<1>();
+    auto ii = i.mutable_unchecked<1>();
+    auto jj = j.mutable_unchecked<1>();
+    for (py::ssize_t k = 0; k < count; ++k) {
+      const PairEvent& e = ev[static_cast<std::size_t>(k)];
+      tt(k) = e.t;
+      ii(k) = e.i;
+      jj(k) = e.j;
+      dd(k) = e.distance;
+    }
+    py::dict c;
+    c["t"] = t;
+    c["i"] = i;
+    c["j"] = j;
+    c["distance"] = dist;
+    return c;
+  };
+  py::dict d;
+  d["passages"] = columns(log.passages);
+  d["outer"] = columns(log.outer);
+  d["closest"] = columns(log.closest);
+  d["dropped"] = log.dropped;
+  return d;
+}
+
 template <class T, bool Compensated>
 void register_engine(py::module_& m, const std::string& suffix) {
   m.def(("diagnostics_" + suffix).c_str(),
@@ -79,7 +111,8 @@ void register_engine(py::module_& m, const std::string& suffix) {
            const limb_array& velocities, const limb_array& t_end, const limb_array& times, double rtol,
            double atol, long long max_steps, double max_wall_time, int max_order, double initial_step,
            const std::vector<double>& radii, int regularization, int pn, const std::vector<double>& c,
-           double merger_factor, int stop, int check_every, double distance_factor, double fixed_step) {
+           double merger_factor, int stop, int check_every, double distance_factor, double fixed_step, bool events,
+           long long max_events, double stop_distance, int stop_pair_i, int stop_pair_j) {
           State<T> s = read_state<T>(masses, positions, velocities);
           const std::vector<T> tend = read_limbs<T>(t_end, {}, "t");
           if (tend.size() != 1) throw py::value_error("t: expected one value");
@@ -95,7 +128,8 @@ void register_engine(py::module_& m, const std::string& suffix) {
           if (pn != 0 && c.size() != static_cast<size_t>(scalar_traits<T>::limbs))
             throw py::value_error("c: expected the limbs of the speed of light");
           // Stop condition and fixed-step mode: gbs only (validated again by the engine).
-          if (stop != 0 && method != "gbs") throw py::value_error("stop: stop conditions need method 'gbs'");
+          if ((stop & ~static_cast<int>(StopCondition::pair_distance)) != 0 && method != "gbs")
+            throw py::value_error("stop: the escape stop needs method 'gbs'");
           if (fixed_step != 0.0 && method != "gbs") throw py::value_error("fixed_step: needs method 'gbs'");
 
           const py::ssize_t n = s.n;
@@ -116,6 +150,12 @@ void register_engine(py::module_& m, const std::string& suffix) {
           opt.distance_factor = distance_factor;
           opt.fixed_step = fixed_step;
           opt.poll = [&poll]() { return poll(); };
+          EventLog log;
+          log.max_events = max_events;
+          if (events || (stop & static_cast<int>(StopCondition::pair_distance)) != 0) opt.events = &log;
+          opt.stop_distance = stop_distance;
+          opt.stop_pair_i = stop_pair_i;
+          opt.stop_pair_j = stop_pair_j;
 
           T t = T(0);
           const T e0 = energy(s);
@@ -142,6 +182,9 @@ void register_engine(py::module_& m, const std::string& suffix) {
           if (pn != 0) d["energy_error"] = report.pn_energy_error;
           d["collision_pair"] = py::make_tuple(report.collision_i, report.collision_j);
           d["rechains"] = report.rechains;
+          d["stopped_by"] = static_cast<int>(st.stopped_by);
+          d["stop_pair"] = py::make_tuple(st.stop_i, st.stop_j);
+          if (opt.events != nullptr) d["events"] = event_dict(log);
           const auto count = static_cast<py::ssize_t>(traj_t.size());
           d["trajectory_t"] = write_limbs<T>(traj_t, {count});
           d["trajectory_positions"] = write_limbs<T>(traj_x, {count, n, 3});
@@ -153,7 +196,9 @@ void register_engine(py::module_& m, const std::string& suffix) {
         py::arg("max_order"), py::arg("initial_step"), py::arg("radii") = std::vector<double>{},
         py::arg("regularization") = 0, py::arg("pn") = 0, py::arg("c") = std::vector<double>{},
         py::arg("merger_factor") = 8.0, py::arg("stop") = 0, py::arg("check_every") = 10,
-        py::arg("distance_factor") = 10.0, py::arg("fixed_step") = 0.0);
+        py::arg("distance_factor") = 10.0, py::arg("fixed_step") = 0.0, py::arg("events") = false,
+        py::arg("max_events") = 1000000, py::arg("stop_distance") = 0.0, py::arg("stop_pair_i") = -1,
+        py::arg("stop_pair_j") = -1);
 }
 
 }  // namespace loschmidt::bind

@@ -21,7 +21,7 @@ from .chaos import (
     lyapunov,
     roundtrip,
 )
-from . import batch, plots, report, store, sweep
+from . import batch, events, plots, report, store, sweep
 from .batch import BatchResult, integrate_batch, roundtrip_batch
 from .store import read_store
 from .sweep import Sweep, available_tasks, register_task

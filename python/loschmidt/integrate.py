@@ -158,6 +158,11 @@ class Result:
         escaped (status ``stop_condition``); None otherwise.
     mergers : tuple of (float, int, int)
         With ``merge=True``: the mergers, as (time, i, j) with the body indices at that moment.
+    events : loschmidt.events.EventLog or None
+        With ``events=True`` (or the pair-distance stop): pericentre passages and closest
+        approaches of every pair.
+    stop_pair : (int, int) or None
+        The pair that met the pair-distance stop (status ``stop_condition``).
 
     Examples
     --------
@@ -188,6 +193,8 @@ class Result:
     rechains: int = 0
     lifetime: float | None = None
     mergers: tuple = ()
+    events: Any = field(default=None, compare=False, repr=False)
+    stop_pair: tuple[int, int] | None = None
 
     @property
     def success(self) -> bool:
@@ -500,9 +507,9 @@ def _check_stop(stop: Any, check_every: Any, distance_factor: Any, fixed_step: A
     """Validate the stop condition and fixed-step arguments: the engine's keyword arguments."""
     from .outcome import DEFAULT_DISTANCE_FACTOR, _check_factor
 
-    if stop not in (None, "escape"):
-        raise ValueError(f"stop: expected None or 'escape', got {stop!r}")
-    if stop is not None and method != "gbs":
+    if stop not in (None, "escape", "pair_distance"):
+        raise ValueError(f"stop: expected None, 'escape' or 'pair_distance', got {stop!r}")
+    if stop == "escape" and method != "gbs":
         raise ValueError(f"stop: the escape stop condition needs method='gbs', got method={method!r}")
     every = _positive_or_none(check_every, "check_every", integer=True)
     if every is None or every > 2**31 - 1:
@@ -513,7 +520,33 @@ def _check_stop(stop: Any, check_every: Any, distance_factor: Any, fixed_step: A
         raise ValueError(f"fixed_step: needs method='gbs', got method={method!r}")
     if fixed_step is not None and initial_step is not None:
         raise ValueError("initial_step: not used with fixed_step (every step has the fixed size)")
-    return {"stop": 0 if stop is None else 1, "check_every": every, "distance_factor": factor, "fixed_step": h}
+    return {"stop": {None: 0, "escape": 1, "pair_distance": 2}[stop], "check_every": every, "distance_factor": factor,
+            "fixed_step": h}
+
+
+def _check_events(events: Any, max_events: Any, stop: Any, stop_distance: Any, stop_pair: Any, n: int) -> dict:
+    """Validate the event-log arguments (loschmidt.events): the engine's keyword arguments."""
+    if not isinstance(events, (bool, np.bool_)):
+        raise TypeError(f"events: expected True or False, got {type(events).__name__}")
+    cap = _positive_or_none(max_events, "max_events", integer=True)
+    out = {"events": bool(events), "max_events": 1000000 if cap is None else cap}
+    if stop != "pair_distance":
+        if stop_distance is not None or stop_pair is not None:
+            raise ValueError("stop_distance, stop_pair: only with stop='pair_distance'")
+        return out
+    d = _positive_or_none(stop_distance, "stop_distance")
+    if d is None:
+        raise ValueError("stop_distance: required with stop='pair_distance' (a positive distance)")
+    out["stop_distance"] = d
+    if stop_pair is not None:
+        try:
+            i, j = (int(x) for x in stop_pair)
+        except (TypeError, ValueError):
+            raise TypeError("stop_pair: expected a pair of body indices, or None for any pair") from None
+        if not (0 <= i < n and 0 <= j < n and i != j):
+            raise ValueError(f"stop_pair: expected two different body indices below {n}, got {stop_pair!r}")
+        out["stop_pair_i"], out["stop_pair_j"] = i, j
+    return out
 
 
 def integrate(
@@ -536,6 +569,10 @@ def integrate(
     distance_factor: float | None = None,
     fixed_step: float | None = None,
     merge: bool = False,
+    events: bool = False,
+    max_events: int | None = None,
+    stop_distance: float | None = None,
+    stop_pair: Sequence[int] | None = None,
 ) -> Result:
     """Integrate ``system`` over a time span ``t`` (negative: backward) in its working precision.
 
@@ -617,6 +654,17 @@ def integrate(
         size (the last before each output time and ``t`` is shortened to land), with exactly
         ``max_order`` rows of extrapolation (any number >= 1 here; order 2 * max_order) and no
         error control or rejection (``tol`` is not used); ``initial_step`` is not accepted with it.
+    events : bool, optional
+        Record the event log (both methods; :mod:`loschmidt.events`): pericentre passages and the
+        closest approach of every pair, in ``Result.events``, without output times.
+    max_events : int, optional
+        Most passages kept in the log (default 1,000,000; the rest are counted).
+    stop_distance : float, optional
+        With ``stop="pair_distance"`` (both methods): end the run at the end of the first step in
+        which ``stop_pair`` (any pair when None) came closer than this; the pair is in
+        ``Result.stop_pair``. Implies an event log.
+    stop_pair : (int, int), optional
+        The pair watched by ``stop_distance`` (default: every pair).
 
     Returns
     -------
@@ -663,11 +711,15 @@ def integrate(
     if merge and outs.shape[0]:
         raise ValueError("times: not available with merge=True (the number of bodies changes at a merger)")
 
+    ev = _check_events(events, max_events, stop, stop_distance, stop_pair, system.n)
+    if ev["events"] and merge:
+        raise ValueError("events: not available with merge=True (the bodies change at a merger)")
     kernel = getattr(_core, f"integrate_{prec}")
     raw = kernel(
         method, system.limbs("masses"), system.limbs("positions"), system.limbs("velocities"),
         t_limbs, outs, rtol, a_tol, steps, wall, order, h0, radii, REGULARIZATIONS.index(regularization),
         pn_mask, c_limbs, factor, **_check_stop(stop, check_every, distance_factor, fixed_step, initial_step, method),
+        **ev,
     )
     result = _wrap(system, raw, method, prec, rtol, bool(outs.shape[0]))
     if not merge or result.status != "merger":
@@ -802,7 +854,21 @@ def _wrap(system: System, raw: dict, method: str, prec: str, rtol: float, want_t
         collision=tuple(int(i) for i in raw["collision_pair"]) if raw["collision_pair"][0] >= 0 else None,
         rechains=int(raw["rechains"]),
         lifetime=float(_p.to_float(raw["t"])) if status_name(code) == "stop_condition" else None,
+        events=_events(raw, system.time),
+        stop_pair=tuple(int(i) for i in raw["stop_pair"]) if int(raw.get("stopped_by", 0)) == 2 else None,
     )
+
+
+def _events(raw: dict, t0: float) -> Any:
+    if "events" not in raw:
+        return None
+    from .events import EventLog
+
+    log = EventLog._from_raw(raw["events"])
+    if t0:  # the engine counts from the start
+        for part in (log.passages, log.outer, log.closest):
+            part["t"] = part["t"] + t0
+    return log
 
 
 def _common(a: System, b: System) -> tuple[System, System, str]:

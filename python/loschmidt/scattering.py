@@ -41,7 +41,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass, field
-from typing import Any, Sequence
+from typing import Any, Mapping, Sequence
 
 import mpmath
 import numpy as np
@@ -59,6 +59,10 @@ __all__ = [
     "ENCOUNTER_OUTCOMES",
     "Encounter",
     "scatter",
+    "TASK_COLUMNS",
+    "prepare_scattering",
+    "run_scattering",
+    "cross_sections",
 ]
 
 #: Tidal perturbation of the binary, relative to its binding force, at the start (and at the end
@@ -524,7 +528,9 @@ class Encounter:
     t_end : float
         Time reached at the end (after carrying the escaper to the tidal distance).
     close_approaches : int
-        Pericentre passages of the outer orbit during the encounter (-1 when not recorded).
+        Pericentre passages of the outer orbit (the body outside the most bound pair about that
+        pair's centre of mass; :mod:`loschmidt.events`) over the whole run: 1 for a flyby, more
+        for a resonance (each temporary ejection and return adds one).
     energy_error : float
         |E_end - E_start| / |E_start| over the whole run.
     steps, evaluations : int
@@ -666,6 +672,7 @@ def scatter(
     ('preservation', (0, 1), 2, True)
     """
     from .integrate import integrate
+    from .orbits import pair_elements
     from .outcome import _check_factor, outcome
     from .precision import to_fraction
     from .system import System
@@ -681,15 +688,12 @@ def scatter(
     k = _check_factor(distance_factor)
     opts = {"method": method, "tol": tol, "max_steps": max_steps, "max_wall_time": max_wall_time}
     m = np.asarray(system.masses, dtype=float)
-    start = outcome(system, 0.0)
-    b0 = -start.binary_energy if start.binary == pair else None
-    if b0 is None:  # the pair given is not the most bound: its own two-body energy
-        from .orbits import pair_elements
-
-        b0 = -pair_elements(system, *pair).energy
+    b0 = -pair_elements(system, *pair).energy  # the initial binding energy
+    if not b0 > 0:
+        raise ValueError(f"binary: bodies {pair} are not bound at the start")
     e_start = to_fraction(system.energy(limbs=True))
     t0 = to_fraction(system.limbs("time"))
-    steps = evaluations = 0
+    steps = evaluations = close = 0
     wall = 0.0
     state = system
     status = "success"
@@ -699,7 +703,9 @@ def scatter(
         if not left > 0:
             status = "success"
             break
-        res = integrate(state, repr(left), stop="escape", distance_factor=k, check_every=check_every, **opts)
+        res = integrate(state, repr(left), stop="escape", distance_factor=k, check_every=check_every, events=True,
+                        **opts)
+        close += len(res.events.outer["t"])
         steps += res.steps
         evaluations += res.evaluations
         wall += res.wall_time
@@ -718,7 +724,7 @@ def scatter(
         e_end = to_fraction(state.energy(limbs=True))
         err = float(abs(e_end - e_start) / abs(e_start)) if e_start != 0 else float(abs(e_end - e_start))
         return Encounter(kind, status, int(escaper), tuple(int(x) for x in bpair), float(a), float(e), float(change),
-                         float(vinf), float(time), float(to_fraction(state.limbs("time")) - t0), -1, err, steps,
+                         float(vinf), float(time), float(to_fraction(state.limbs("time")) - t0), close, err, steps,
                          evaluations, wall, state)
 
     if status in ("collision", "merger"):
@@ -736,7 +742,8 @@ def scatter(
     V = math.sqrt(max(0.0, 2 * (found.outer_energy + m[esc] * (m[i] + m[j]) / found.distance) / mu))
     span = _escape_time(float(m.sum()), found.distance, V, found.radial_velocity, target)
     if span > 0:
-        res = integrate(state, repr(span), **opts)
+        res = integrate(state, repr(span), events=True, **opts)
+        close += len(res.events.outer["t"])
         steps += res.steps
         evaluations += res.evaluations
         wall += res.wall_time
@@ -750,3 +757,194 @@ def scatter(
     kind = "preservation" if tuple(found.binary) == pair else "exchange"
     change = (-found.binary_energy - b0) / b0
     return done(kind, found.third, found.binary, found.semimajor_axis, found.eccentricity, change, found.v_inf, t_res)
+
+
+# ---------------------------------------------------------------------------------------------
+# the sweep task "scattering"
+# ---------------------------------------------------------------------------------------------
+_TASK_KEYS = ("t_max", "budget_periods", "precision", "method", "tol", "max_steps", "max_wall_time",
+              "tidal_tolerance", "distance_factor", "check_every")
+
+#: Columns of the task "scattering", in order.
+TASK_COLUMNS = ("outcome", "status", "escaper", "binary_i", "binary_j", "semimajor_axis", "eccentricity",
+                "energy_change", "escaper_v_inf", "time", "t_end", "close_approaches", "energy_error", "steps",
+                "evaluations", "wall_time")
+
+
+def prepare_scattering(**options: Any) -> dict:
+    """Validate the options of the sweep task ``"scattering"``.
+
+    Each member (three bodies, the binary 0 and 1; e.g. from :func:`binary_single_ensemble`) is
+    followed by :func:`scatter`. Its time budget is ``t_max`` when given, else
+    2 ``t_pericentre`` + ``budget_periods`` x ``binary_period`` from the member's params (the way
+    in and out, and that many periods of the initial binary for a resonance).
+
+    Parameters
+    ----------
+    **options
+        ``t_max`` (number), ``budget_periods`` (default 1000), ``precision`` (default "f64"),
+        ``method`` (default "gbs"), ``tol``, ``max_steps``, ``max_wall_time`` (per piece),
+        ``tidal_tolerance`` (default 1e-5), ``distance_factor`` (default 10), ``check_every``
+        (default 10).
+
+    Returns
+    -------
+    dict
+        The options, validated and JSON-friendly (hashed into the store's manifest).
+    """
+    from .integrate import METHODS, _positive_or_none, check_tolerance
+    from .outcome import _check_factor
+    from .precision import check_precision
+
+    unknown = sorted(set(options) - set(_TASK_KEYS))
+    if unknown:
+        raise ValueError(f"options: unknown {unknown}; expected some of {list(_TASK_KEYS)}")
+    prec = check_precision(options.get("precision", "f64"))
+    method = options.get("method", "gbs")
+    if method not in METHODS:
+        raise ValueError(f"method: expected one of {METHODS}, got {method!r}")
+    out: dict = {"precision": prec, "method": method, "tol": check_tolerance(options.get("tol"), prec)}
+    with mpmath.workprec(53 + GUARD_BITS):
+        out["tidal_tolerance"] = float(_tolerance(options.get("tidal_tolerance", DEFAULT_TIDAL_TOLERANCE)))
+        out["t_max"] = float(_positive(options["t_max"], "t_max")) if options.get("t_max") is not None else None
+        out["budget_periods"] = float(_positive(options.get("budget_periods", 1000), "budget_periods"))
+    out["distance_factor"] = _check_factor(options.get("distance_factor", 10.0))
+    out["max_steps"] = _positive_or_none(options.get("max_steps"), "max_steps", integer=True)
+    out["max_wall_time"] = _positive_or_none(options.get("max_wall_time"), "max_wall_time")
+    every = _positive_or_none(options.get("check_every", 10), "check_every", integer=True)
+    if every is None or every > 2**31 - 1:
+        raise ValueError(f"check_every: expected a positive integer, got {options.get('check_every')!r}")
+    out["check_every"] = int(every)
+    return out
+
+
+def _budget(chunk: Ensemble, i: int, options: Mapping[str, Any]) -> float:
+    if options.get("t_max") is not None:
+        return float(options["t_max"])
+    p = chunk.params
+    if "t_pericentre" not in p or "binary_period" not in p:
+        raise ValueError("t_max: required for members without the params t_pericentre and binary_period "
+                         "(binary_single_ensemble gives them)")
+    return 2 * float(p["t_pericentre"][i]) + options["budget_periods"] * float(p["binary_period"][i])
+
+
+def _one(chunk: Ensemble, i: int, options: Mapping[str, Any]) -> tuple:
+    enc = scatter(chunk.system(i, options["precision"]), repr(_budget(chunk, i, options)),
+                  tidal_tolerance=options["tidal_tolerance"], distance_factor=options["distance_factor"],
+                  method=options["method"], tol=options["tol"], max_steps=options.get("max_steps"),
+                  max_wall_time=options.get("max_wall_time"), check_every=options["check_every"])
+    return (enc.outcome, enc.status, enc.escaper, enc.binary[0], enc.binary[1], enc.semimajor_axis,
+            enc.eccentricity, enc.energy_change, enc.v_inf, enc.time, enc.t_end, enc.close_approaches,
+            enc.energy_error, enc.steps, enc.evaluations, enc.wall_time)
+
+
+def run_scattering(chunk: Ensemble, options: Mapping[str, Any]) -> dict:
+    """The sweep task ``"scattering"`` on one chunk: every member by :func:`scatter`, on threads.
+
+    Parameters
+    ----------
+    chunk : Ensemble
+        Three-body members, the binary first.
+    options : mapping
+        The prepared options, plus ``threads`` and ``progress`` at run time.
+
+    Returns
+    -------
+    dict of str to numpy.ndarray
+        ``TASK_COLUMNS``, one row per member: the fields of :class:`Encounter` (``escaper_v_inf``
+        is its ``v_inf``).
+    """
+    import concurrent.futures as cf
+    import os
+
+    from . import _core
+
+    if chunk.n != 3:
+        raise ValueError(f"ensemble: a binary-single encounter has 3 bodies, got {chunk.n}")
+    threads = options.get("threads") or len(os.sched_getaffinity(0))
+    progress = options.get("progress")
+    rows: list = [None] * len(chunk)
+    pool = cf.ThreadPoolExecutor(max_workers=max(1, min(int(threads), len(chunk))))
+    try:
+        futures = {pool.submit(_one, chunk, i, options): i for i in range(len(chunk))}
+        done = 0
+        for fut in cf.as_completed(futures):
+            rows[futures[fut]] = fut.result()
+            done += 1
+            if progress is not None:
+                progress(done)
+    except BaseException:
+        _core.request_stop(True)  # stop the members still running on the other threads
+        pool.shutdown(wait=True, cancel_futures=True)
+        _core.request_stop(False)
+        raise
+    pool.shutdown(wait=True)
+    kinds = (object, object, np.int64, np.int64, np.int64) + (np.float64,) * 6 + (np.int64, np.float64, np.int64,
+                                                                                    np.int64, np.float64)
+    return {n: np.array([r[k] for r in rows], dtype=d) for k, (n, d) in enumerate(zip(TASK_COLUMNS, kinds))}
+
+
+# ---------------------------------------------------------------------------------------------
+# cross sections
+# ---------------------------------------------------------------------------------------------
+def cross_sections(table: Any, semimajor_axis: float = 1.0) -> Any:
+    """Cross sections per outcome and speed from a table of encounters (a store's results).
+
+    sigma = pi b_max^2 f, f the fraction of the speed's members with that outcome, and the Monte
+    Carlo (binomial) error pi b_max^2 sqrt(f (1 - f) / N); also per speed the mean relative change
+    of the binary's binding energy over all resolved members (ionization counting as -1, the
+    binding energy gone; mergers left out) with its standard error: the cross-section weighted
+    mean of Heggie (1975, MNRAS 173, 729) once multiplied by pi b_max^2.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame or mapping of columns
+        Columns ``speed_index``, ``v_over_vc``, ``b_max`` (the ensemble's params) and ``outcome``,
+        ``energy_change`` (the task's).
+    semimajor_axis : float, optional
+        The initial binary's semimajor axis, for ``sigma / (pi a^2)`` (default 1).
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per speed and outcome (``ENCOUNTER_OUTCOMES``): ``speed_index``, ``v_over_vc``,
+        ``members``, ``b_max``, ``outcome``, ``count``, ``fraction``, ``sigma``, ``sigma_error``,
+        ``sigma_pi_a2``, ``sigma_pi_a2_error``, ``mean_energy_change``, ``mean_energy_change_error``.
+
+    Examples
+    --------
+    >>> from loschmidt import scattering
+    >>> t = {"speed_index": [0, 0, 0, 0], "v_over_vc": [0.5] * 4, "b_max": [2.0] * 4,
+    ...      "outcome": ["preservation", "exchange", "preservation", "preservation"],
+    ...      "energy_change": [0.1, 0.2, 0.0, 0.1]}
+    >>> cs = scattering.cross_sections(t)
+    >>> row = cs[cs.outcome == "exchange"].iloc[0]
+    >>> round(row.sigma_pi_a2, 6), round(row.sigma_pi_a2_error, 6)   # 4 x 1/4, 4 sqrt(3/64)
+    (1.0, 0.866025)
+    """
+    import pandas as pd
+
+    df = pd.DataFrame({k: np.asarray(table[k]) for k in ("speed_index", "v_over_vc", "b_max", "outcome",
+                                                           "energy_change")})
+    if not (isinstance(semimajor_axis, (int, float)) and semimajor_axis > 0 and math.isfinite(semimajor_axis)):
+        raise ValueError(f"semimajor_axis: expected a positive number, got {semimajor_axis!r}")
+    rows = []
+    for s, g in df.groupby("speed_index", sort=True):
+        n = len(g)
+        bmax = float(g["b_max"].iloc[0])
+        area = math.pi * bmax * bmax
+        change = np.where(g["outcome"] == "ionization", -1.0, g["energy_change"].to_numpy(dtype=float))
+        keep = g["outcome"].isin(("preservation", "exchange", "ionization")).to_numpy() & np.isfinite(change)
+        mean = float(change[keep].mean()) if keep.any() else math.nan
+        err = float(change[keep].std(ddof=1) / math.sqrt(keep.sum())) if keep.sum() > 1 else math.nan
+        for kind in ENCOUNTER_OUTCOMES:
+            count = int((g["outcome"] == kind).sum())
+            f = count / n
+            sigma = area * f
+            error = area * math.sqrt(f * (1 - f) / n)
+            rows.append({"speed_index": int(s), "v_over_vc": float(g["v_over_vc"].iloc[0]), "members": n,
+                         "b_max": bmax, "outcome": kind, "count": count, "fraction": f, "sigma": sigma,
+                         "sigma_error": error, "sigma_pi_a2": sigma / (math.pi * semimajor_axis**2),
+                         "sigma_pi_a2_error": error / (math.pi * semimajor_axis**2),
+                         "mean_energy_change": mean, "mean_energy_change_error": err})
+    return pd.DataFrame(rows)
