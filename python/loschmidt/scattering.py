@@ -34,6 +34,22 @@ Initial conditions (:func:`binary_single`, :func:`binary_single_ensemble`)
     rounded once (exact limbs in every precision, like ``ics.binary``); an ensemble's float64
     values are its members' initial conditions, computed the same way at 53 + 64 bits and rounded
     once to double, so a member is the same problem in every precision.
+
+Encounters (:func:`scatter`, the sweep task ``"scattering"``)
+    The end of an encounter is decided in the engine by its escape stop; the stopped state is
+    classified exactly by :func:`loschmidt.outcome.outcome`, and a surviving binary is measured
+    once the escaper has reached the binary's tidal distance again. Outcomes: preservation,
+    exchange (which body left), ionization, merger (contact or post-Newtonian merger), unresolved
+    (a budget ran out first; never guessed). The number of close approaches is the number of
+    pericentre passages of the outer orbit in the engine's event log (:mod:`loschmidt.events`).
+
+Cross sections (:func:`cross_sections`)
+    sigma = pi b_max^2 x fraction per outcome and speed, with binomial Monte Carlo errors, and the
+    mean relative change of the binding energy (Heggie 1975, MNRAS 173, 729).
+
+Where the time goes (measured, f64, equal masses, 2-core machine shared with other jobs): about
+90% of an encounter is the exact mpmath classification of the stopped states (three calls of
+``outcome``/``pair_elements``, ~10-40 ms each), about 10% the integration itself.
 """
 
 from __future__ import annotations

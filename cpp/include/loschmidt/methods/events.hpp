@@ -16,8 +16,9 @@
 //      velocities), found by golden-section search.
 // A step that holds more than one minimum of the same pair (a step of several orbits) records
 // one. Three bodies: the body outside the most bound pair (lowest two-body energy, bound) about
-// that pair's centre of mass is watched the same way (gravitational parameter m_1 + m_2 + m_3):
-// its pericentre passages are the close approaches of a resonant encounter (j = -1 in the log).
+// that pair's centre of mass is watched the same way (gravitational parameter m_1 + m_2 + m_3),
+// the pair taken anew at each state (it changes in an exchange; a state with no bound pair is
+// skipped): its pericentre passages are the close approaches of a resonant encounter (j = -1).
 //
 // Everything in double. Appending to the log may allocate (amortised; at most max_events entries
 // are kept, the rest counted in dropped); the per-step work is O(N^2) flops.
@@ -152,6 +153,10 @@ class EventLog {
       for (int j = i + 1; j < n_; ++j) closest.push_back(PairEvent{0.0, i, j, HUGE_VAL});
     rv_.assign(closest.size(), 0.0);
     load(t, s, x1_, v1_);
+    if (n_ == 3) {
+      double dist;
+      outer_pair_ = watch_outer(outer_rv_, dist);
+    }
     t1_ = to_double(t);
     for (std::size_t k = 0; k < closest.size(); ++k) {
       double r[3], v[3];
@@ -159,9 +164,6 @@ class EventLog {
       rv_[k] = detail::dot3(r, v);
       update_closest(k, t1_, std::sqrt(detail::dot3(r, r)));
     }
-    outer_pair_ = -1;
-    outer_rv_ = 0.0;
-    if (n_ == 3) outer_pair_ = watch_outer(outer_rv_, outer_dist_);
   }
 
   // After each accepted step, with the physical state at its end. True when the pair-distance
@@ -203,26 +205,28 @@ class EventLog {
       }
     }
     if (n_ == 3) {
+      // The outer body about the most bound pair: approaching at the start of the step (with the
+      // pair most bound there) and receding at its end (with the pair most bound there). The pair
+      // may change within the step: in an exchange, and in a close hyperbolic pass of the incomer
+      // by one member, which is momentarily "bound" in the middle of a flyby.
       double rv, dist;
-      std::swap(x0_, x1_);  // the outer orbit at the start of the step, for locating a minimum
-      std::swap(v0_, v1_);
-      double rv_start, dist_start;
-      const int pair_start = watch_outer(rv_start, dist_start);
-      double R0[3], V0[3];
-      outer_relative(pair_start, R0, V0);
-      std::swap(x0_, x1_);
-      std::swap(v0_, v1_);
       const int pair = watch_outer(rv, dist);
-      if (pair >= 0 && pair == outer_pair_ && pair_start == pair && dir * outer_rv_ < 0 && dir * rv >= 0) {
-        double R1[3], V1[3];
+      if (pair >= 0 && outer_pair_ >= 0 && dir * outer_rv_ < 0 && dir * rv >= 0) {
+        double R1[3], V1[3], R0[3], V0[3];
         outer_relative(pair, R1, V1);
+        std::swap(x0_, x1_);
+        std::swap(v0_, v1_);
+        outer_relative(pair, R0, V0);  // the same pair at the start of the step
+        std::swap(x0_, x1_);
+        std::swap(v0_, v1_);
         double tp, q;
         locate(m_[0] + m_[1] + m_[2], t0, R0, V0, R1, V1, dt, tp, q);
         record(outer, PairEvent{tp, 3 - pair_i(pair) - pair_j(pair), -1, q});
       }
-      outer_pair_ = pair;
-      outer_rv_ = rv;
-      outer_dist_ = dist;
+      if (pair >= 0) {  // through a moment with no bound pair, the last bound pair's sign stands
+        outer_pair_ = pair;
+        outer_rv_ = rv;
+      }
     }
     return stop;
   }
@@ -231,8 +235,8 @@ class EventLog {
   int n_ = 0;
   std::vector<double> m_, x0_, v0_, x1_, v1_, rv_;
   double t1_ = 0.0;
-  int outer_pair_ = -1;  // index 0, 1, 2 of the pairs (0,1), (0,2), (1,2); -1: none bound
-  double outer_rv_ = 0.0, outer_dist_ = 0.0;
+  int outer_pair_ = -1;    // three bodies: the most bound pair at the last state (0, 1, 2 for the
+  double outer_rv_ = 0.0;  // pairs (0,1), (0,2), (1,2); -1 none bound) and the outer R . V there
 
   static int pair_i(int p) { return p == 2 ? 1 : 0; }
   static int pair_j(int p) { return p == 0 ? 1 : 2; }
