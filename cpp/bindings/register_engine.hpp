@@ -128,8 +128,6 @@ void register_engine(py::module_& m, const std::string& suffix) {
           if (pn != 0 && c.size() != static_cast<size_t>(scalar_traits<T>::limbs))
             throw py::value_error("c: expected the limbs of the speed of light");
           // Stop condition and fixed-step mode: gbs only (validated again by the engine).
-          if ((stop & ~static_cast<int>(StopCondition::pair_distance)) != 0 && method != "gbs")
-            throw py::value_error("stop: the escape stop needs method 'gbs'");
           if (fixed_step != 0.0 && method != "gbs") throw py::value_error("fixed_step: needs method 'gbs'");
 
           const py::ssize_t n = s.n;

@@ -509,8 +509,6 @@ def _check_stop(stop: Any, check_every: Any, distance_factor: Any, fixed_step: A
 
     if stop not in (None, "escape", "pair_distance"):
         raise ValueError(f"stop: expected None, 'escape' or 'pair_distance', got {stop!r}")
-    if stop == "escape" and method != "gbs":
-        raise ValueError(f"stop: the escape stop condition needs method='gbs', got method={method!r}")
     every = _positive_or_none(check_every, "check_every", integer=True)
     if every is None or every > 2**31 - 1:
         raise ValueError(f"check_every: expected a positive integer, got {check_every!r}")
@@ -626,8 +624,8 @@ def integrate(
         ``merger_factor * 2 G (m_i + m_j) / c^2``, ends the run with status ``merger`` and the pair
         in ``Result.collision``. Default 8 (16 G M / c^2: v/c ~ 0.25 on a circular orbit, where the
         PN expansion is about to fail); 0 switches the test off. The bodies are not merged.
-    stop : {None, "escape"}, optional
-        ``"escape"`` (gbs only): every ``check_every`` accepted steps the engine tests, in double
+    stop : {None, "escape", "pair_distance"}, optional
+        ``"escape"`` (both methods): every ``check_every`` accepted steps the engine tests, in double
         precision, whether a body escapes, and stops with status ``stop_condition`` when one does;
         ``t`` is then the longest span and ``Result.lifetime`` the time it stopped. The test is
         that of :mod:`loschmidt.outcome` for two and three bodies (three: the body outside the

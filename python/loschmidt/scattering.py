@@ -221,7 +221,7 @@ def critical_speed(m1: Any, m2: Any, m3: Any, semimajor_axis: Any) -> float:
     --------
     >>> from loschmidt import scattering
     >>> round(scattering.critical_speed(1, 1, 1, 1), 12)    # sqrt(3/2)
-    1.224744871391
+    1.224744871392
     """
     with mpmath.workprec(53 + GUARD_BITS):
         return float(_vc(_positive(m1, "m1"), _positive(m2, "m2"), _positive(m3, "m3"),
@@ -355,7 +355,7 @@ def binary_single(
     1.0
     >>> out = orbits.pair_elements(s, (0, 1), 2)
     >>> round(out.semimajor_axis, 12), round(out.angular_momentum / out.reduced_mass, 12)  # -M/v^2, b v
-    (-8.0, 1.224744871391)
+    (-8.0, 1.224744871392)
     """
     from .ics import _system
 
@@ -548,7 +548,7 @@ class Encounter:
         pair's centre of mass; :mod:`loschmidt.events`) over the whole run: 1 for a flyby, more
         for a resonance (each temporary ejection and return adds one).
     energy_error : float
-        |E_end - E_start| / |E_start| over the whole run.
+        ``|E_end - E_start| / |E_start|`` over the whole run.
     steps, evaluations : int
         Engine counters, summed over the pieces.
     wall_time : float
@@ -935,7 +935,7 @@ def cross_sections(table: Any, semimajor_axis: float = 1.0) -> Any:
     ...      "energy_change": [0.1, 0.2, 0.0, 0.1]}
     >>> cs = scattering.cross_sections(t)
     >>> row = cs[cs.outcome == "exchange"].iloc[0]
-    >>> round(row.sigma_pi_a2, 6), round(row.sigma_pi_a2_error, 6)   # 4 x 1/4, 4 sqrt(3/64)
+    >>> round(float(row.sigma_pi_a2), 6), round(float(row.sigma_pi_a2_error), 6)   # 4 x 1/4, 4 sqrt(3/64)
     (1.0, 0.866025)
     """
     import pandas as pd

@@ -5,8 +5,11 @@
 //   integrate  each system from t = 0 to its t_end;
 //   roundtrip  a Loschmidt test (METHODS.md section 4): forward to t_end, negate every velocity,
 //              forward another t_end, negate again; then the distances to the start, computed in
-//              the working precision with exactly the operations of loschmidt.phase_distances (so a
-//              batch and a single-system run agree bit for bit).
+//              the working precision by phase_space_distances (nbody/diagnostics.hpp), with
+//              exactly the operations of loschmidt.phase_distances (so a batch and a
+//              single-system run agree bit for bit).
+// The method comes from the one dispatch (methods/dispatch.hpp); every option of a single run,
+// stop conditions included, applies to each system.
 //
 // Determinism: every system is integrated on its own, by the same single-system integrator with
 // the same options, into its own output slots; nothing is shared between systems but the stop
@@ -40,8 +43,7 @@
 #include <thread>
 #include <vector>
 
-#include <loschmidt/methods/chain.hpp>
-#include <loschmidt/methods/gbs.hpp>
+#include <loschmidt/methods/dispatch.hpp>
 #include <loschmidt/methods/options.hpp>
 #include <loschmidt/methods/status.hpp>
 #include <loschmidt/nbody/diagnostics.hpp>
@@ -50,25 +52,17 @@
 
 namespace loschmidt {
 
-// A single-system integrator with the contract of integrate_gbs (from t to t_end, no outputs). The
-// chain options (regularization, radii, post-Newtonian terms, report) are read by method "chain"
-// only; the batch gives each worker its own copy, with the system's radii and its own report.
+// A single-system integrator with the contract of integrate_gbs (from t to t_end, no outputs),
+// from the one method dispatch (methods/dispatch.hpp). The chain options (regularization, radii,
+// post-Newtonian terms, report) belong to method "chain"; the batch gives each worker its own copy,
+// with the system's radii and its own report.
 template <class T>
-using BatchIntegrator = Stats (*)(State<T>&, T&, const T&, const Options&, const ChainOptions&);
+using BatchIntegrator = Integrator<T>;
 
-// Method dispatch: the one place mapping a method name to its integrator. Adding a method is one
-// line here and its header above.
+// By name, through the dispatch (kept for callers that hold a name).
 template <class T, bool Compensated>
 BatchIntegrator<T> batch_integrator(const std::string& method) {
-  if (method == "gbs")
-    return [](State<T>& s, T& t, const T& e, const Options& o, const ChainOptions&) {
-      return integrate_gbs<T, Compensated>(s, t, e, o);
-    };
-  if (method == "chain")
-    return [](State<T>& s, T& t, const T& e, const Options& o, const ChainOptions& c) {
-      return integrate_chain<T, Compensated>(s, t, e, o, c);
-    };
-  throw std::invalid_argument("method: unknown method '" + method + "' for a batch");
+  return integrator<T, Compensated>(method_from_name(method));
 }
 
 enum class BatchTask : int { integrate = 0, roundtrip = 1 };
@@ -109,10 +103,17 @@ struct BatchOutput {
   // none, on the leg that ended the run; re-chainings summed over both legs.
   std::vector<int> pair_i, pair_j;
   std::vector<long long> rechains;
+  // Status stop_condition (Options::stop, any method): the condition met (StopCondition as int;
+  // 0 none) and the body (stop_i; the escaper) or pair (stop_i, stop_j) that met it, -1 when none.
+  // With a stop condition, integrate gives the time it was met in t and the state there: the
+  // lifetime of a system that breaks up, with no stepping loop outside the engine.
+  std::vector<int> stopped_by, stop_i, stop_j;
 };
 
 struct BatchSettings {
-  Options options;  // per-system options; options.poll is replaced by the batch's stop flag
+  // Per-system options (stop conditions and fixed-step mode included); options.poll is replaced
+  // by the batch's stop flag.
+  Options options;
   // Method "chain": per-system options; chain.radii and chain.report are replaced per system by
   // radii below and a worker-local report.
   ChainOptions chain;
@@ -133,26 +134,11 @@ T relative_energy_error(const T& e1, const T& e0) {
   return e0 == T(0) ? abs(e1 - e0) : abs((e1 - e0) / e0);
 }
 
-// The operations of loschmidt.phase_distances: differences, squares, plain sums in body-major
-// order, positions and velocities separately, then their sum; all in T.
 template <class T>
-void roundtrip_distances(const T* x, const T* v, const T* x0, const T* v0, int k, T& delta, T& dpos,
-                         T& dvel) {
-  using std::sqrt;
-  T sx = T(0), sv = T(0);
-  for (int i = 0; i < k; ++i) {
-    const T dx = x[i] - x0[i];
-    const T d2 = dx * dx;
-    sx = i == 0 ? d2 : sx + d2;
-  }
-  for (int i = 0; i < k; ++i) {
-    const T dv = v[i] - v0[i];
-    const T d2 = dv * dv;
-    sv = i == 0 ? d2 : sv + d2;
-  }
-  delta = sqrt(sx + sv);
-  dpos = sqrt(sx);
-  dvel = sqrt(sv);
+void record_stop(BatchOutput<T>& out, std::size_t i, const Stats& st) {
+  out.stopped_by[i] = static_cast<int>(st.stopped_by);
+  out.stop_i[i] = st.stop_i;
+  out.stop_j[i] = st.stop_j;
 }
 
 template <class T>
@@ -201,6 +187,7 @@ void run_one(BatchTask task, BatchIntegrator<T> integrate, const BatchInput<T>& 
   out.pair_i[i] = report.collision_i;
   out.pair_j[i] = report.collision_j;
   out.rechains[i] = report.rechains;
+  record_stop(out, i, fwd);
   add_stats(out, i, fwd);
   if (task == BatchTask::integrate || fwd.status != Status::success) return;
 
@@ -218,10 +205,11 @@ void run_one(BatchTask task, BatchIntegrator<T> integrate, const BatchInput<T>& 
   out.pair_i[i] = report.collision_i;
   out.pair_j[i] = report.collision_j;
   out.rechains[i] += report.rechains;
+  record_stop(out, i, back);
   add_stats(out, i, back);
   if (back.status == Status::success)
-    roundtrip_distances(s.x.data(), s.v.data(), x0, v0, static_cast<int>(k), out.delta[i], out.delta_position[i],
-                        out.delta_velocity[i]);
+    phase_space_distances(s.x.data(), s.v.data(), x0, v0, static_cast<int>(k), out.delta[i], out.delta_position[i],
+                          out.delta_velocity[i]);
 }
 
 // Outputs sized and set to "never started": state at the start, t = 0, status interrupted.
@@ -249,6 +237,9 @@ void prepare_output(BatchTask task, const BatchInput<T>& in, BatchOutput<T>& out
   out.pair_i.assign(count, -1);
   out.pair_j.assign(count, -1);
   out.rechains.assign(count, 0);
+  out.stopped_by.assign(count, 0);
+  out.stop_i.assign(count, -1);
+  out.stop_j.assign(count, -1);
   if (task == BatchTask::roundtrip) {
     out.delta.assign(count, nan);
     out.delta_position.assign(count, nan);

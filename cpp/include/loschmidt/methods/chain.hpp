@@ -31,6 +31,17 @@
 // through zero), the time increment (scaled by atol + rtol |dt| of the step, a relative phase error
 // per step; a scale in |t| would let the phase error grow with t) and omega; accepted at RMS <= 1.
 //
+// Stop conditions (Options::stop, methods/stop.hpp) are tested every check_every accepted steps on
+// the physical state, as in gbs, Newtonian or post-Newtonian alike; fixed-step mode
+// (Options::fixed_step) keeps the fictitious step constant at U(0) times fixed_step and lands on
+// output times by Newton's method without an error test (for order measurements).
+//
+// A place for the variational equations (Lyapunov exponents in the chain method; not built): a
+// substep that carries the tangent of the chain vector beside it (y extended past layout.dim()),
+// ChainNorm unchanged (it reads only the layout's components, so the tangent never drives the
+// step), and a renormalisation hook after each accepted step where the re-chaining is done now
+// (the tangent's links would be re-formed with the same exact sums).
+//
 // Options as read by this method: initial_step is a PHYSICAL time (the first fictitious step is
 // U(0) times it; 0 = a tenth of the shortest pair time scale); the step floor min_step_fraction
 // applies to the fictitious step, relative to max(first step, fictitious time covered); max_order
@@ -59,6 +70,7 @@
 #include <loschmidt/methods/options.hpp>
 #include <loschmidt/methods/status.hpp>
 #include <loschmidt/methods/step_control.hpp>
+#include <loschmidt/methods/stop.hpp>
 #include <loschmidt/methods/validate.hpp>
 #include <loschmidt/nbody/state.hpp>
 #include <loschmidt/scalar/compensated.hpp>
@@ -338,9 +350,14 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
   }
 
   chain::ChainStepper<T> stepper;
-  stepper.setup(&sub, dim, copt.sequence, rows, opt.rtol, copt.tuning, chain::ChainNorm<T>(lay, opt.rtol, opt.atol));
+  // The fixed-step mode may use fewer than the controller's minimum of 3 rows.
+  const bool fixed = opt.fixed_step > 0;
+  stepper.setup(&sub, dim, copt.sequence, fixed ? std::max(rows, 3) : rows, opt.rtol, copt.tuning,
+                chain::ChainNorm<T>(lay, opt.rtol, opt.atol));
   OrderStepController& ctrl = stepper.controller();
   RunBudget<T> budget(opt, clock_start);
+  StopMonitor<T> stop;
+  stop.setup(opt, s);
   if (opt.events != nullptr) opt.events->start(t, s);
   // Hands the physical state after an accepted step to the event log; true: its stop holds.
   auto log_step = [&]() {
@@ -361,9 +378,14 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
 
   // First step in fictitious time: H = U * dt with dt a tenth of the shortest two-body time scale
   // (free-fall sqrt(r^3/m) or crossing r/v over all pairs), or Options::initial_step taken as a
-  // physical time; never more than the whole span.
+  // physical time; never more than the whole span. Fixed-step mode: every step is U(0) times
+  // Options::fixed_step (a physical time at the start; the fictitious step stays constant, so the
+  // physical step follows the regularization), shortened only to land.
+  const double U0 = to_double(y[static_cast<std::size_t>(lay.omega())]);
+  const double h_fixed = U0 * opt.fixed_step;
+  if (fixed && (!(h_fixed > 0) || !std::isfinite(h_fixed))) return finish_counted(Status::nonfinite);
+  double h_fixed_now = h_fixed;  // halved for one attempt when a landing fails
   {
-    const double U0 = to_double(y[static_cast<std::size_t>(lay.omega())]);
     double dt0 = opt.initial_step;
     if (!(dt0 > 0)) {
       double tmin = std::numeric_limits<double>::infinity();
@@ -421,17 +443,24 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
       if (!(sg > 0.0 && sg <= 1.0)) sg = R / D;
       Hn = H_over * T(sg);
     }
+    // Fixed-step mode: with few rows and a long step the extrapolated t(H) differs from the true
+    // flow by more than round-off, so dt/ds at the trial's end is not its exact derivative and
+    // Newton converges only linearly (measured: rows 1, ~10 iterations in dd): more iterations,
+    // and the floor is where the residual stops falling.
+    const int max_iter = fixed ? 40 : 12;
     double res_prev = 0.0, q_prev = 0.0;
-    for (int iter = 0; iter < 12; ++iter) {
+    for (int iter = 0; iter < max_iter; ++iter) {
       if (!((forward ? Hn > T(0) : Hn < T(0)) && abs(Hn) <= abs(H_over))) Hn = H_over * (rem / dt_over);
       const double err = stepper.evaluate(Hn, kc);
       ++rep.landing_iterations;
-      if (!(err <= 1.0)) return false;
       const T* dy = stepper.increment();
       const T dtn = dy[it];
+      // Fixed-step mode has no error test; a non-finite trial fails either way.
+      if (fixed ? !isfinite(dtn) : !(err <= 1.0)) return false;
       const double res = std::fabs(to_double(rem - dtn));
-      const bool floor = iter >= 2 && q_prev > 0 && res > 100.0 * q_prev * res_prev * res_prev;
-      if (res <= tol || floor || iter == 11) {
+      const bool floor = fixed ? iter >= 1 && res >= res_prev
+                               : iter >= 2 && q_prev > 0 && res > 100.0 * q_prev * res_prev * res_prev;
+      if (res <= tol || floor || iter == max_iter - 1) {
         if (res > tol_floor) return false;
         for (int i = 0; i < dim; ++i) dbest[static_cast<std::size_t>(i)] = dy[i];
         rep.landing_residual = std::fmax(rep.landing_residual, res);
@@ -502,19 +531,26 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
     const T& target = next_out < n_out ? output_times[next_out] : t_end;
     const T rem = target - time_now();
     bool landed = false;
+    bool stepped = false;
     if ((forward && !(rem > T(0))) || (!forward && !(rem < T(0)))) {
       landed = true;  // at (or a rounding past) the target already
     } else {
-      const double hmag = ctrl.proposal();
-      // ---- budgets, checked before each attempt
-      if (budget.below_floor(hmag, std::max(s_total, s_ref0))) {
+      const double hmag = fixed ? h_fixed_now : ctrl.proposal();
+      // ---- budgets, checked before each attempt (fixed-step mode: no step floor)
+      if (!fixed && budget.below_floor(hmag, std::max(s_total, s_ref0))) {
         status = Status::step_underflow;
         break;
       }
       status = budget.next_attempt();
       if (status != Status::success) break;
       const T H = T(dir * hmag);
-      if (!stepper.attempt(H, first)) {
+      if (fixed) {
+        if (!stepper.fixed(H, rows)) {
+          status = Status::nonfinite;
+          break;
+        }
+        h_fixed_now = h_fixed;
+      } else if (!stepper.attempt(H, first)) {
         ++st.rejected;
         continue;
       }
@@ -570,7 +606,8 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
       if (overshoot) {
         // Discard the step; Newton's method on t(H) = target with the overshooting step's order.
         if (!land(H, dt_step, rate_end, rem, kc)) {
-          ctrl.set_proposal(0.5 * hmag);
+          if (fixed) h_fixed_now = 0.5 * hmag;
+          else ctrl.set_proposal(0.5 * hmag);
           ++st.rejected;
           continue;
         }
@@ -584,7 +621,7 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
         landed = true;
       } else {
         add_increment(stepper.increment());
-        if (budget.stalled(to_double(dt_step), to_double(time_now()))) {
+        if (!fixed && budget.stalled(to_double(dt_step), to_double(time_now()))) {
           s_total += hmag;
           ++st.steps;
           status = Status::step_underflow;
@@ -594,6 +631,7 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
       s_total += hmag;
       ++st.steps;
       first = false;
+      stepped = true;
       if (frame.needs_rechain(y.data()) && frame.rechain(y.data(), Compensated ? comp.data() : nullptr)) ++rep.rechains;
       if (!stepper.start_at(y.data())) {
         status = Status::nonfinite;
@@ -617,6 +655,14 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
     if (st.steps != steps_before && log_step()) {
       status = Status::stop_condition;
       break;
+    }
+    // ---- stop conditions, every check_every accepted steps (on the physical state)
+    if (stepped && stop.due(st.steps)) {
+      store();
+      if (stop.met(s, st)) {
+        status = Status::stop_condition;
+        break;
+      }
     }
   }
   store();

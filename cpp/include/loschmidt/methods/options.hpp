@@ -87,7 +87,8 @@ struct Options {
   // physical state after each accepted step; it records pericentre passages and closest
   // approaches, and tests StopCondition::pair_distance: the pair (stop_pair_i, stop_pair_j), or
   // any pair when stop_pair_i < 0, closer than stop_distance within a step ends the run with
-  // Status::stop_condition at the end of that step.
+  // Status::stop_condition at the end of that step. One log per run: not for the batch driver,
+  // whose workers share the Options.
   EventLog* events = nullptr;
   double stop_distance = 0.0;
   int stop_pair_i = -1, stop_pair_j = -1;

@@ -93,19 +93,40 @@ inline std::array<T, 3> center_of_mass(const State<T>& s) {
   return {c[0].value() / M, c[1].value() / M, c[2].value() / M};
 }
 
-// Phase-space distance used for round trips: sqrt(sum_i |x_i - y_i|^2 + |v_i - w_i|^2), N-body
-// units, differences taken in the working precision. Both states must have the same n.
+// Phase-space distances used for round trips (METHODS.md section 4), the one implementation:
+// between (x, v) and (x0, v0), k = 3n components each, delta = sqrt(sum |dx|^2 + |dv|^2), and its
+// position and velocity parts dpos = sqrt(sum |dx|^2), dvel = sqrt(sum |dv|^2), N-body units, all
+// in the working precision T. The operations are exactly those of loschmidt.phase_distances
+// (differences, squares, plain sums in body-major order, positions and velocities separately,
+// then their sum), so an engine result and a Python one agree bit for bit. Plain sums are enough:
+// the distance is compared with perturbations many orders above its round-off.
+template <class T>
+inline void phase_space_distances(const T* x, const T* v, const T* x0, const T* v0, int k, T& delta, T& dpos,
+                                  T& dvel) {
+  using std::sqrt;
+  T sx = T(0), sv = T(0);
+  for (int i = 0; i < k; ++i) {
+    const T dx = x[i] - x0[i];
+    const T d2 = dx * dx;
+    sx = i == 0 ? d2 : sx + d2;
+  }
+  for (int i = 0; i < k; ++i) {
+    const T dv = v[i] - v0[i];
+    const T d2 = dv * dv;
+    sv = i == 0 ? d2 : sv + d2;
+  }
+  delta = sqrt(sx + sv);
+  dpos = sqrt(sx);
+  dvel = sqrt(sv);
+}
+
+// delta between two states of the same n.
 template <class T>
 inline T phase_space_distance(const State<T>& a, const State<T>& b) {
-  using std::sqrt;
-  compensated_sum<T> sum;
-  for (std::size_t k = 0; k < a.x.size(); ++k) {
-    const T dx = a.x[k] - b.x[k];
-    const T dv = a.v[k] - b.v[k];
-    sum.add(dx * dx);
-    sum.add(dv * dv);
-  }
-  return sqrt(sum.value());
+  T delta, dpos, dvel;
+  phase_space_distances(a.x.data(), a.v.data(), b.x.data(), b.v.data(), static_cast<int>(a.x.size()), delta, dpos,
+                        dvel);
+  return delta;
 }
 
 }  // namespace loschmidt
