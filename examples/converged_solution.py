@@ -15,7 +15,7 @@ Usage::
 
 ``--quick``: t = 10, 16 digits (under a second of integration). Full: t = 70, 24 digits, which
 needs quad-double (about 10 s). The converged state is saved exactly as ``converged-state.json`` in
-``--out`` (default ``./example-output``; ``loschmidt.System.load`` reads it).
+``--out`` (default: a new temporary directory, printed; ``loschmidt.System.load`` reads it).
 
 Expected output (measured on the development machine): the ladder of runs with the digits each
 agrees with the one before, then ``converged: True``:
@@ -43,8 +43,13 @@ from loschmidt import ics, precision
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="t = 10 and 16 digits instead of t = 70 and 24")
-    parser.add_argument("--out", type=Path, default=Path("example-output"), help="directory for the converged state")
+    parser.add_argument("--out", type=Path, default=None, help="directory for the converged state (default: a new temporary directory)")
     args = parser.parse_args(argv)
+    if args.out is None:  # never into the checkout: a fresh temporary directory
+        import tempfile
+
+        args.out = Path(tempfile.mkdtemp(prefix="loschmidt-example-"))
+        print(f"output directory: {args.out}")
     t, digits = (10, 16) if args.quick else (70, 24)
     args.out.mkdir(parents=True, exist_ok=True)
 
@@ -66,7 +71,7 @@ def main(argv: list[str] | None = None) -> int:
     for i, m in enumerate(c.system.masses):
         px = ", ".join(precision.to_string(x[i, j], shown) for j in range(2))
         vx = ", ".join(precision.to_string(v[i, j], shown) for j in range(2))
-        print(f"  body {i + 1} (m = {m:g}): x = ({px})")
+        print(f"  body {i} (m = {m:g}): x = ({px})")
         print(f"  {'':>12} v = ({vx})")
     path = args.out / "converged-state.json"
     c.system.save(path)

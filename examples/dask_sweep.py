@@ -4,7 +4,7 @@
 ``dask.distributed.Client``: the workers receive only each chunk's initial conditions and the
 options, integrate them in the C++ engine, and send the columns back; the calling process writes
 the store. Because every member is integrated on its own, the results are the same bits wherever
-and in whatever order the chunks run. This script runs round trips of free-fall triples (body 3
+and in whatever order the chunks run. This script runs round trips of free-fall triples (body 2
 released from rest at the cell centres of a grid over the Agekyan & Anosova 1967 region) twice:
 
 1. on the local C++ thread pool (``executor=None``, 2 threads), and
@@ -21,7 +21,7 @@ Usage::
 ``--quick``: a 4 x 7 grid (21 members), 1 time unit each way, in f64 (a few seconds, most of it
 starting the cluster). Full: an 8 x 14 grid (80 members), 5 time units each way, in dd (about 20 s). ``--scheduler tcp://host:8786`` uses an existing cluster instead of starting one. The
 stores ``dask-<quick|full>-local/`` and ``dask-<quick|full>-cluster/`` are written afresh in
-``--out`` (default ``./example-output``) on every run.
+``--out`` (default: a new temporary directory, printed) on every run.
 
 Expected output: the cluster's address and workers, one line per run with its member count and
 time, the number of reversible members (quick: 18 of 21 in f64; full: 80 of 80 in dd), then
@@ -73,9 +73,14 @@ def run_sweep(ens, store: Path, executor=None, threads=None, **options) -> tuple
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="4 x 7 grid, t = 1, f64 (instead of 8 x 14, t = 5, dd)")
-    parser.add_argument("--out", type=Path, default=Path("example-output"), help="directory for the two stores")
+    parser.add_argument("--out", type=Path, default=None, help="directory for the two stores (default: a new temporary directory)")
     parser.add_argument("--scheduler", default=None, help="address of a running Dask scheduler (default: start a LocalCluster)")
     args = parser.parse_args(argv)
+    if args.out is None:  # never into the checkout: a fresh temporary directory
+        import tempfile
+
+        args.out = Path(tempfile.mkdtemp(prefix="loschmidt-example-"))
+        print(f"output directory: {args.out}")
     nx, ny, t, prec = (4, 7, 1, "f64") if args.quick else (8, 14, 5, "dd")
     mode = "quick" if args.quick else "full"
     args.out.mkdir(parents=True, exist_ok=True)

@@ -13,7 +13,7 @@ Usage::
 
 ``--quick`` follows the problem for 10 time units instead of 70 (a few seconds in all; the full run
 takes about 15 s, most of it in quad-double). The end state of each forward leg is saved, exactly,
-as ``forward-<precision>.json`` in ``--out`` (default ``./example-output``); ``loschmidt.Result.load``
+as ``forward-<precision>.json`` in ``--out`` (default: a new temporary directory, printed); ``loschmidt.Result.load``
 reads it back bit for bit.
 
 Expected output (measured on the development machine; the last column is what matters)::
@@ -41,8 +41,13 @@ from loschmidt import ics
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="10 time units instead of 70")
-    parser.add_argument("--out", type=Path, default=Path("example-output"), help="directory for the saved results")
+    parser.add_argument("--out", type=Path, default=None, help="directory for the saved results (default: a new temporary directory)")
     args = parser.parse_args(argv)
+    if args.out is None:  # never into the checkout: a fresh temporary directory
+        import tempfile
+
+        args.out = Path(tempfile.mkdtemp(prefix="loschmidt-example-"))
+        print(f"output directory: {args.out}")
     t = 10 if args.quick else 70
     args.out.mkdir(parents=True, exist_ok=True)
 

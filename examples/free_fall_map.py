@@ -1,6 +1,6 @@
 """A reversibility map of the free-fall three-body problem, as a resumable sweep and a PNG.
 
-Three equal masses start at rest: bodies 1 and 2 at (-1/2, 0) and (1/2, 0), body 3 at a point of
+Three equal masses start at rest: bodies 0 and 1 at (-1/2, 0) and (1/2, 0), body 2 at a point of
 the free-fall region x >= 0, y >= 0, (x + 1/2)^2 + y^2 <= 1 (Agekyan & Anosova 1967), here the
 centre of each cell of a grid over it (``loschmidt.ics.free_fall_grid``). ``loschmidt.Sweep`` runs
 a round trip of every member -- forward ``t``, velocities reversed, forward ``t`` again -- with the
@@ -14,7 +14,7 @@ Usage::
 
 ``--quick``: a 3 x 5 grid (11 members) followed for 5 time units (a few seconds). Full: an 8 x 14
 grid (80 members) for 10 time units (about 30 CPU-seconds, most of it in dd). Output in ``--out``
-(default ``./example-output``): ``free_fall_map.png`` and the stores
+(default: a new temporary directory, printed): ``free_fall_map.png`` and the stores
 ``free-fall-<quick|full>-<precision>/`` (run the script again and finished chunks are kept; Ctrl-C
 at any time loses at most the running chunks).
 
@@ -23,7 +23,7 @@ Expected output (measured on the development machine): one line per precision,
 - quick: f64 brings back 1 of 11 members to within 1e-10 (median log10 delta about -8), dd all 11
   (median about -22);
 - full: f64 1 of 80 (median log10 delta about -6), dd 78 of 80 (median about -20); the two dd
-  misses start close to the line through bodies 1 and 2, near body 2.
+  misses start close to the line through bodies 0 and 1, near body 1.
 
 Reversible means back within delta <= 1e-10 (phase-space distance, N-body units).
 """
@@ -46,15 +46,20 @@ NAMES = {"f64": "f64 (double)", "dd": "dd (double-double)"}
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="3 x 5 grid, t = 5 (instead of 8 x 14, t = 10)")
-    parser.add_argument("--out", type=Path, default=Path("example-output"), help="directory for the stores and the PNG")
+    parser.add_argument("--out", type=Path, default=None, help="directory for the stores and the PNG (default: a new temporary directory)")
     parser.add_argument("--threads", type=int, default=None, help="C++ threads (default: all cores)")
     args = parser.parse_args(argv)
+    if args.out is None:  # never into the checkout: a fresh temporary directory
+        import tempfile
+
+        args.out = Path(tempfile.mkdtemp(prefix="loschmidt-example-"))
+        print(f"output directory: {args.out}")
     nx, ny, t = (3, 5, 5) if args.quick else (8, 14, 10)
     mode = "quick" if args.quick else "full"
     args.out.mkdir(parents=True, exist_ok=True)
 
     ens = ics.free_fall_grid(nx, ny)
-    print(f"free fall: body 3 at the centres of a {nx} x {ny} grid over the region, {len(ens)} members; "
+    print(f"free fall: body 2 at the centres of a {nx} x {ny} grid over the region, {len(ens)} members; "
           f"round trips of {t} time units each way, method 'chain'")
     tables = {}
     for prec in ("f64", "dd"):
@@ -76,7 +81,7 @@ def main(argv: list[str] | None = None) -> int:
     print(f"  reversible: back within delta <= {THRESHOLD:.0e} of the start (phase-space distance, N-body units)")
 
     fig = plots.reversibility_map(tables, threshold=THRESHOLD,
-                                  title=f"Free fall, {len(ens)} starts of body 3: round trips of {t} time units")
+                                  title=f"Free fall, {len(ens)} starts of body 2: round trips of {t} time units")
     png = plots.save(fig, args.out / "free_fall_map.png")
     print(f"map written to {png}")
     return 0

@@ -17,7 +17,7 @@ Usage::
 
 ``--quick``: 10 time units (149 kyr), 20 renormalisation intervals (about 2 s). Full: 30 time
 units (447 kyr), 60 intervals (about 6 s). Writes ``planck_threshold.png`` (the growth of the
-perturbation against time) in ``--out`` (default ``./example-output``).
+perturbation against time) in ``--out`` (default: a new temporary directory, printed).
 
 Expected output (measured on the development machine)::
 
@@ -51,8 +51,13 @@ VELOCITIES = [["0.1", "-0.3"], ["-0.2", "0.4"], ["0.1", "-0.15"]]  # total momen
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="10 time units instead of 30")
-    parser.add_argument("--out", type=Path, default=Path("example-output"), help="directory for the PNG")
+    parser.add_argument("--out", type=Path, default=None, help="directory for the PNG (default: a new temporary directory)")
     args = parser.parse_args(argv)
+    if args.out is None:  # never into the checkout: a fresh temporary directory
+        import tempfile
+
+        args.out = Path(tempfile.mkdtemp(prefix="loschmidt-example-"))
+        print(f"output directory: {args.out}")
     t, intervals = (10, 20) if args.quick else (30, 60)
     args.out.mkdir(parents=True, exist_ok=True)
 

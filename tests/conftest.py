@@ -34,3 +34,13 @@ _PROFILE = os.environ.get("LOSCHMIDT_FUZZ", "ci").strip().lower() or "ci"
 if _PROFILE not in ("ci", "deep"):
     raise RuntimeError(f"LOSCHMIDT_FUZZ: expected 'ci' or 'deep', got {_PROFILE!r}")
 settings.load_profile(_PROFILE)
+
+
+import pytest  # noqa: E402
+
+
+@pytest.fixture(autouse=True)
+def _run_in_a_temporary_directory(tmp_path, monkeypatch):
+    """Every test runs in its own temporary directory: relative output paths (a configuration file's
+    store or picture, the command line's defaults) land there, never in the source tree."""
+    monkeypatch.chdir(tmp_path)

@@ -138,3 +138,18 @@ def test_time_transformed_leapfrog_agrees() -> None:
     a = loschmidt.integrate(s, 5, method="chain", regularization="time_transformed", tol=1e-28)
     b = loschmidt.integrate(s, 5, method="chain", tol=1e-28)
     assert a.success and loschmidt.chaos.agreement_digits(a.system, b.system) >= 18
+
+
+@pytest.mark.parametrize("prec", ["f64", "dd"])
+def test_span_out_of_reach_ends_with_step_underflow(prec: str) -> None:
+    # A head-on pair released from rest 1e-15 apart bounces on its regularized collision orbit with
+    # a period of about 2 pi sqrt(r^3 / (2 G m)) ~ 1e-22 (Kepler's third law for the radial orbit of
+    # semimajor axis r/2): reaching t = 0.5 would take some 1e21 bounces. The run must say so at
+    # once (step_underflow after the floor's 1000 steps) instead of spinning until a budget. Runs
+    # long in orbits that do finish keep going (test_very_eccentric_binary_over_1000_periods).
+    s = loschmidt.System([1, 1, 1], [[0, 0], [1e-15, 0], [1, 0]], [[0, 0]] * 3, prec)
+    r = loschmidt.integrate(s, 0.5, method="chain")
+    assert r.status == "step_underflow"
+    assert r.steps == 1000
+    assert 0 < r.t < 1e-18
+

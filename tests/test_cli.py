@@ -85,10 +85,10 @@ length = "pc"
 def small_store(tmp_path_factory) -> Path:
     d = tmp_path_factory.mktemp("sweep")
     cfg = _sweep_toml(d / "small.toml", "small-store", nx=4, ny=7, t=3, precision="f64", chunk_size=8)
-    r = _cli("sweep", str(cfg), "--no-progress")
+    r = _cli("sweep", str(cfg), "--no-progress", cwd=d)
     assert r.returncode == 0, r.stderr
     assert "reversible, delta <= 1e-10" in r.stdout
-    return d / "small-store"  # relative paths are taken from the config file's directory
+    return d / "small-store"  # relative paths are taken from the directory the command runs in
 
 
 @pytest.fixture(scope="module")
@@ -274,8 +274,9 @@ def test_run_pythagorean_roundtrip():
     r = _cli("run", "--family", "pythagorean", "--t", "70", "--precision", "dd", "--method", "chain",
              "--roundtrip", "--no-progress")
     assert r.returncode == 0, r.stderr
-    # Szebehely & Peters 1967: the mass-3 body (body 1) escapes; bodies 2 and 3 (masses 4, 5) stay bound
-    assert "outcome at t = 70: escape of body 1; binary of bodies 2 and 3" in r.stdout
+    # Szebehely & Peters 1967: the mass-3 body (body 0, counted from 0) escapes; bodies 1 and 2
+    # (masses 4, 5) stay bound
+    assert "outcome at t = 70: escape of body 0; binary of bodies 1 and 2" in r.stdout
     m = re.search(r"round trip delta ([\d.e+-]+)", r.stdout)
     assert m and float(m.group(1)) < 1e-10
     assert "reversible" in r.stdout
@@ -288,7 +289,7 @@ def test_run_config_with_orbit_plot(tmp_path, capsys):
     assert main(["run", str(cfg), "--no-progress"]) == 0
     out = capsys.readouterr().out
     assert "bound" in out
-    assert _png_size(tmp_path / "eight.png")[0] > 0  # relative to the config file's directory
+    assert _png_size(tmp_path / "eight.png")[0] > 0  # relative to the directory the command runs in (tmp_path)
 
 
 def test_bench_outside_a_source_checkout():

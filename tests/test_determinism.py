@@ -32,7 +32,7 @@ PROGRAM = textwrap.dedent(
         return d.hexdigest()[:16]
 
     s = ics.pythagorean(precision="dd")
-    gbs = loschmidt.integrate(s, 5)
+    gbs = loschmidt.integrate(s, 5, method="gbs")  # explicit: the default is now automatic (chain for 3 bodies)
     chain = loschmidt.integrate(s, 5, method="chain")
     batch = loschmidt.roundtrip_batch(ics.free_fall_grid(3, 3), 2, precision="f64", method="chain", threads=THREADS)
     triple = ics.hierarchical(inner=dict(m1=0.5, m2=0.4, a=1, e=0.5),

@@ -27,7 +27,7 @@ DOCS = ROOT / "docs"
 
 #: The public modules; each is documented on its own page of the API reference.
 PUBLIC_MODULES = (
-    "system", "integrate", "status", "precision", "chaos", "ics", "ensemble", "orbits", "units",
+    "system", "integrate", "options", "engine", "status", "precision", "chaos", "ics", "ensemble", "orbits", "units",
     "outcome", "scattering", "events", "batch", "sweep", "tasks", "store", "plots", "report", "serialize",
 )
 

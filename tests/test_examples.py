@@ -46,7 +46,7 @@ def test_converged_solution(tmp_path: Path) -> None:
     text = run_example("converged_solution", tmp_path)
     m = re.search(r"^converged: True \(converged\); digits agreed: (\S+) of 16", text, flags=re.M)
     assert m and float(m.group(1)) >= 16, text
-    assert "body 3 (m = 5): x = (" in text
+    assert "body 2 (m = 5): x = (" in text  # bodies counted from 0
     import loschmidt
 
     state = loschmidt.System.load(tmp_path / "out" / "converged-state.json")

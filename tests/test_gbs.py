@@ -271,7 +271,7 @@ def test_head_on_collision_ends_with_step_underflow(precision: str) -> None:
     # steps shrink without end on the way in; in dd and qd they stay above the first step floor
     # for millions of steps, so the second floor (a tiny fraction of the mean step) must end it.
     s = loschmidt.System([1, 1], [[0, 0], [1, 0]], [[0, 0], [0, 0]], precision=precision)
-    r = loschmidt.integrate(s, 2)
+    r = loschmidt.integrate(s, 2, method="gbs")  # pinned: the default is automatic (chain for two bodies)
     assert r.status == "step_underflow", r.status
     assert r.steps <= 5000
     assert abs(r.t - math.pi / 4) < 1e-8

@@ -108,8 +108,8 @@ def test_ensemble_bad_input() -> None:
 def test_ensemble_draws() -> None:
     from scipy import stats
 
-    ens = ics.binary_single_ensemble(150, 7, v_over_vc=[0.3, 3])
-    again = ics.binary_single_ensemble(150, 7, v_over_vc=[0.3, 3])
+    ens = scattering.binary_single_ensemble(150, 7, v_over_vc=[0.3, 3])
+    again = scattering.binary_single_ensemble(150, 7, v_over_vc=[0.3, 3])
     assert np.array_equal(ens.positions, again.positions) and np.array_equal(ens.velocities, again.velocities)
     p = ens.params
     for s in (0, 1):
@@ -196,6 +196,15 @@ def test_pair_distance_stop(method: str) -> None:
         loschmidt.integrate(s, 1, stop="pair_distance", stop_distance=1, stop_pair=(1, 1))
     with pytest.raises(ValueError, match="stop_distance"):
         loschmidt.integrate(s, 1, stop_distance=1)
+    with pytest.raises(ValueError, match="stop_pair"):
+        loschmidt.integrate(s, 1, stop="pair_distance", stop_distance=1, stop_pair=(0, 3))  # bodies from 0
+    with pytest.raises(TypeError, match="events"):
+        loschmidt.integrate(s, 1, events=1)
+    with pytest.raises(ValueError, match="max_events"):
+        loschmidt.integrate(s, 1, events=True, max_events=0)
+    # the log belongs to one run: the batch refuses the pair-distance stop before any work
+    with pytest.raises(ValueError, match="pair_distance"):
+        loschmidt.integrate_batch(ics.free_fall_grid(2, 2), 1, precision="f64", stop="pair_distance")
 
 
 # ---------------------------------------------------------------------------------------------

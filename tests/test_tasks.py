@@ -199,3 +199,30 @@ def test_sweep_rows_become_systems_exactly(tmp_path) -> None:
         rt.systems(len(ens))
     with pytest.raises(TypeError, match="member"):
         rt.systems("0")
+
+
+@pytest.mark.slow
+def test_lifetime_through_the_engine_matches_the_python_loop(tmp_path) -> None:
+    """Issue 16: task "lifetime" runs in one C++ batch with the escape stop condition; its results
+    agree with the former path, integrate_until_escape (a Python loop over spans of ``interval``
+    with loschmidt.outcome at each span end), member by member: the same outcome, the same escaper,
+    the same lifetime (the end of the first span at which the escape test holds). The Pythagorean
+    problem's member (masses 3, 4, 5) must see the mass-3 body (index 0) escape (Szebehely & Peters
+    1967, AJ 72, 876)."""
+    members = [ics.pythagorean("f64"),
+               loschmidt.System([3, 4, 5], [[1, 3], [-2, -1], [1.01, -1]], [[0, 0]] * 3, precision="f64"),
+               loschmidt.System([1, 1, 1], [[0, 0], [1, 0], [0.5, 0.8]], [[0, 0]] * 3, precision="f64")]
+    ens = _ensemble(members)
+    df = Sweep(ens, task="lifetime", store=tmp_path / "life", t_max=200, interval=5).run(progress=False).results()
+    assert df["outcome"][0] == "escape" and df["escaper"][0] == 0
+    for i, s in enumerate(members):
+        res, found, lifetime = loschmidt.integrate_until_escape(s, 200, interval=5, method="chain")
+        assert df["outcome"][i] == ("merger" if res.status == "merger" else found.kind), i
+        esc = found.escaper if found.kind == "escape" and found.escaper is not None else -1
+        assert df["escaper"][i] == esc, i
+        if lifetime is None:
+            assert np.isnan(df["lifetime"][i]), i
+        else:
+            assert df["lifetime"][i] == lifetime, (i, df["lifetime"][i], lifetime)
+            # the engine stopped within the last span: the exact time it saw the escape
+            assert lifetime - 5 < df["t_reached"][i] <= lifetime, (i, df["t_reached"][i])

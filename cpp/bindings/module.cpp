@@ -2,6 +2,8 @@
 #include <pybind11/pybind11.h>
 
 #include "interrupt.hpp"
+#include "precision_table.hpp"
+#include "types.hpp"
 #include "loschmidt/methods/status.hpp"
 
 namespace py = pybind11;
@@ -28,8 +30,12 @@ PYBIND11_MODULE(_core, m) {
     statuses.append(py::make_tuple(i, loschmidt::status_name(s), loschmidt::status_message(s)));
   }
   m.attr("statuses") = statuses;
+  // The working precisions, from scalar_traits (precision_table.hpp): loschmidt.precision reads them.
+  m.attr("precisions") = loschmidt::bind::precision_table();
   m.def("request_stop", [](bool on) { loschmidt::bind::stop_requested().store(on); }, py::arg("on") = true,
         "Ask every running integration to stop at its next step (status 'interrupted').");
+  // Options, ChainOptions, Stats and the records (types.hpp), before the kernels that use them.
+  loschmidt::bind::register_types(m);
   loschmidt::bind::register_f64(m);
   loschmidt::bind::register_dd(m);
   loschmidt::bind::register_qd(m);

@@ -1,10 +1,9 @@
 // Batch entry points (batch.hpp), one registration per (scalar, compensation) pair:
 //   batch_integrate_<p>, batch_roundtrip_<p>(method, masses (M,N,k), positions (M,N,3,k),
-//   velocities (M,N,3,k), t_end (k,) or (M,k), rtol, atol, max_steps, max_wall_time, max_order,
-//   initial_step, threads, progress=None, radii=[], regularization=0, pn=0, c=[],
-//   merger_factor=8) -> dict of arrays. radii: none, N shared or M*N (row-major) values; the
-//   chain options are those of integrate_<p> and are read by method "chain" only.
-// The Python layer (loschmidt.batch) validates everything first. The GIL is released while the
+//   velocities (M,N,3,k), t_end (k,) or (M,k), options: Options, chain: ChainOptions, radii,
+//   threads, progress=None) -> BatchRecord (types.hpp). radii: none, N shared or M*N (row-major)
+//   values; the options are those of integrate_<p> (stop conditions and fixed_step included).
+// The Python layer (loschmidt.options, loschmidt.batch) validates everything first. The GIL is released while the
 // workers run; the calling thread takes it back about every 50 ms to let Python run its signal
 // handlers (interrupt.hpp) and, every 100 ms or so, to call progress(done) (first
 // after 100 ms, then whenever done has changed). A KeyboardInterrupt (or
@@ -16,7 +15,7 @@
 
 #include "interrupt.hpp"
 #include "limbs.hpp"
-#include "options.hpp"
+#include "types.hpp"
 #include "loschmidt/batch.hpp"
 #include "loschmidt/scalar/scalar.hpp"
 
@@ -40,11 +39,10 @@ py::array_t<double> rounded(const std::vector<T>& values) {
 }
 
 template <class T, bool Compensated>
-py::dict run(BatchTask task, const std::string& method, const limb_array& masses, const limb_array& positions,
-             const limb_array& velocities, const limb_array& t_end, double rtol, double atol,
-             long long max_steps, double max_wall_time, int max_order, double initial_step, int threads,
-             const py::object& progress, const std::vector<double>& radii, int regularization, int pn,
-             const std::vector<double>& c, double merger_factor) {
+BatchRecord run(BatchTask task, const std::string& method, const limb_array& masses, const limb_array& positions,
+                const limb_array& velocities, const limb_array& t_end, const Options& options,
+                const ChainOptions& chain, const std::vector<double>& radii, int threads,
+                const py::object& progress) {
   constexpr int k = scalar_traits<T>::limbs;
   if (masses.ndim() != 3 || masses.shape(2) != k)
     throw py::value_error("masses: expected an (M, N, k) limb array with k = " + std::to_string(k));
@@ -64,21 +62,14 @@ py::dict run(BatchTask task, const std::string& method, const limb_array& masses
   if (!(radii.empty() || radii.size() == static_cast<std::size_t>(n) ||
         radii.size() == static_cast<std::size_t>(count * n)))
     throw py::value_error("radii: expected one radius per body, shared or per system");
-  if (regularization < 0 || regularization > 1) throw py::value_error("regularization: unknown regularization");
-  if (pn < 0 || pn > pn_all) throw py::value_error("pn: unknown post-Newtonian orders");
-  if (method != "chain" && (pn != 0 || !radii.empty()))
-    throw py::value_error("pn, radii: post-Newtonian terms and radii need method 'chain'");
-  if (pn != 0 && c.size() != static_cast<std::size_t>(k))
+  if (chain.pn_orders != 0 && chain.light_speed.size() != static_cast<std::size_t>(k))
     throw py::value_error("c: expected the limbs of the speed of light");
 
   BatchSettings settings;
-  settings.options = base_options(rtol, atol, max_steps, max_wall_time, max_order, initial_step);
+  settings.options = options;
   settings.threads = threads;
   settings.radii = radii;
-  settings.chain.regularization = static_cast<ChainRegularization>(regularization);
-  settings.chain.pn_orders = pn;
-  settings.chain.light_speed = c;
-  settings.chain.merger_factor = merger_factor;
+  settings.chain = chain;
 
   interrupt_poll poll;
   const bool report = !progress.is_none();
@@ -112,30 +103,33 @@ py::dict run(BatchTask task, const std::string& method, const limb_array& masses
   }
   if (poll.signalled() || callback_failed) throw py::error_already_set();
 
-  py::dict d;
-  d["positions"] = write_limbs<T>(out.x, {count, n, 3});
-  d["velocities"] = write_limbs<T>(out.v, {count, n, 3});
-  d["t"] = write_limbs<T>(out.t, {count});
-  d["status"] = column(out.status);
-  d["forward_status"] = column(out.forward_status);
-  d["steps"] = column(out.steps);
-  d["rejected"] = column(out.rejected);
-  d["evaluations"] = column(out.evaluations);
-  d["wall_time"] = column(out.wall_time);
-  d["energy_error"] = rounded(out.energy_error);
-  d["forward_energy_error"] = rounded(out.forward_energy_error);
-  d["pair_i"] = column(out.pair_i);
-  d["pair_j"] = column(out.pair_j);
-  d["rechains"] = column(out.rechains);
+  BatchRecord r;
+  r.positions = write_limbs<T>(out.x, {count, n, 3});
+  r.velocities = write_limbs<T>(out.v, {count, n, 3});
+  r.t = write_limbs<T>(out.t, {count});
+  r.status = column(out.status);
+  r.forward_status = column(out.forward_status);
+  r.steps = column(out.steps);
+  r.rejected = column(out.rejected);
+  r.evaluations = column(out.evaluations);
+  r.wall_time = column(out.wall_time);
+  r.energy_error = rounded(out.energy_error);
+  r.forward_energy_error = rounded(out.forward_energy_error);
+  r.pair_i = column(out.pair_i);
+  r.pair_j = column(out.pair_j);
+  r.rechains = column(out.rechains);
+  r.stopped_by = column(out.stopped_by);
+  r.stop_i = column(out.stop_i);
+  r.stop_j = column(out.stop_j);
   if (task == BatchTask::roundtrip) {
-    d["returned_positions"] = write_limbs<T>(out.back_x, {count, n, 3});
-    d["returned_velocities"] = write_limbs<T>(out.back_v, {count, n, 3});
-    d["returned_t"] = write_limbs<T>(out.back_t, {count});
-    d["delta"] = rounded(out.delta);
-    d["delta_position"] = rounded(out.delta_position);
-    d["delta_velocity"] = rounded(out.delta_velocity);
+    r.returned_positions = write_limbs<T>(out.back_x, {count, n, 3});
+    r.returned_velocities = write_limbs<T>(out.back_v, {count, n, 3});
+    r.returned_t = write_limbs<T>(out.back_t, {count});
+    r.delta = rounded(out.delta);
+    r.delta_position = rounded(out.delta_position);
+    r.delta_velocity = rounded(out.delta_velocity);
   }
-  return d;
+  return r;
 }
 
 }  // namespace detail_batch
@@ -146,19 +140,15 @@ void register_batch(py::module_& m, const std::string& suffix) {
     const std::string name = std::string(task == BatchTask::integrate ? "batch_integrate_" : "batch_roundtrip_") + suffix;
     m.def(name.c_str(),
           [task](const std::string& method, const limb_array& masses, const limb_array& positions,
-                 const limb_array& velocities, const limb_array& t_end, double rtol, double atol,
-                 long long max_steps, double max_wall_time, int max_order, double initial_step, int threads,
-                 const py::object& progress, const std::vector<double>& radii, int regularization, int pn,
-                 const std::vector<double>& c, double merger_factor) {
-            return detail_batch::run<T, Compensated>(task, method, masses, positions, velocities, t_end, rtol, atol,
-                                                     max_steps, max_wall_time, max_order, initial_step, threads,
-                                                     progress, radii, regularization, pn, c, merger_factor);
+                 const limb_array& velocities, const limb_array& t_end, const Options& options,
+                 const ChainOptions& chain, const std::vector<double>& radii, int threads,
+                 const py::object& progress) {
+            return detail_batch::run<T, Compensated>(task, method, masses, positions, velocities, t_end, options,
+                                                     chain, radii, threads, progress);
           },
           py::arg("method"), py::arg("masses"), py::arg("positions"), py::arg("velocities"), py::arg("t_end"),
-          py::arg("rtol"), py::arg("atol"), py::arg("max_steps"), py::arg("max_wall_time"), py::arg("max_order"),
-          py::arg("initial_step"), py::arg("threads"), py::arg("progress") = py::none(),
-          py::arg("radii") = std::vector<double>{}, py::arg("regularization") = 0, py::arg("pn") = 0,
-          py::arg("c") = std::vector<double>{}, py::arg("merger_factor") = 8.0);
+          py::arg("options"), py::arg("chain"), py::arg("radii"), py::arg("threads"),
+          py::arg("progress") = py::none());
   }
 }
 

@@ -1,16 +1,17 @@
 // Integration and diagnostics entry points, one registration per (scalar, compensation) pair.
-// The Python layer (loschmidt.integrate) validates everything first; this layer only converts limbs,
-// releases the GIL, runs the engine and hands back limbs, the status and the statistics.
+// The Python layer (loschmidt.options, loschmidt.engine) validates everything first and passes the
+// engine's own Options and ChainOptions (types.hpp); this layer converts limbs, releases the GIL,
+// runs the one method dispatch (methods/dispatch.hpp) and hands back a RunRecord.
 #pragma once
 #include <string>
 #include <vector>
 
 #include "interrupt.hpp"
 #include "limbs.hpp"
-#include "options.hpp"
+#include "types.hpp"
 #include "loschmidt/batch.hpp"
-#include "loschmidt/methods/chain.hpp"
-#include "loschmidt/methods/gbs.hpp"
+#include "loschmidt/methods/dispatch.hpp"
+#include "loschmidt/methods/events.hpp"
 #include "loschmidt/methods/status.hpp"
 #include "loschmidt/nbody/diagnostics.hpp"
 #include "loschmidt/nbody/state.hpp"
@@ -47,26 +48,20 @@ py::dict diagnostics_dict(const State<T>& s) {
 // The fields every integration entry point returns: final limbs, status, counters and the relative
 // energy error |E1 - E0| / |E0| computed in the working precision (absolute when E0 = 0).
 template <class T>
-py::dict run_summary(const State<T>& s, const T& t, const Stats& st, const T& e0) {
-  using std::abs;
-  const T e1 = energy(s);
-  const T de = detail::relative_energy_error(e1, e0);  // +inf when an energy is not finite
+RunRecord run_record(const State<T>& s, const T& t, const Stats& st, const T& e0) {
+  const T de = detail::relative_energy_error(energy(s), e0);  // +inf when an energy is not finite
   const py::ssize_t n = s.n;
-  py::dict d;
-  d["positions"] = write_limbs<T>(s.x, {n, 3});
-  d["velocities"] = write_limbs<T>(s.v, {n, 3});
-  d["t"] = scalar_limbs(t);
-  d["status"] = static_cast<int>(st.status);
-  d["steps"] = st.steps;
-  d["rejected"] = st.rejected;
-  d["evaluations"] = st.evaluations;
-  d["wall_time"] = st.wall_time;
-  d["energy_error"] = to_double(de);
-  return d;
+  RunRecord r;
+  r.positions = write_limbs<T>(s.x, {n, 3});
+  r.velocities = write_limbs<T>(s.v, {n, 3});
+  r.t = scalar_limbs(t);
+  r.stats = st;
+  r.energy_error = to_double(de);
+  return r;
 }
 
-// The event log as numpy columns: {"passages", "outer", "closest"} -> {"t", "i", "j", "distance"}.
-inline py::dict event_dict(const EventLog& log) {
+// The event log as an EventRecord (types.hpp): passages, outer, closest as columns t, i, j, distance.
+inline EventRecord event_record(const EventLog& log) {
   auto columns = [](const std::vector<PairEvent>& ev) {
     const auto count = static_cast<py::ssize_t>(ev.size());
     py::array_t<double> t(count), dist(count);
@@ -82,19 +77,19 @@ inline py::dict event_dict(const EventLog& log) {
       jj(k) = e.j;
       dd(k) = e.distance;
     }
-    py::dict c;
-    c["t"] = t;
-    c["i"] = i;
-    c["j"] = j;
-    c["distance"] = dist;
+    EventColumns c;
+    c.t = t;
+    c.i = i;
+    c.j = j;
+    c.distance = dist;
     return c;
   };
-  py::dict d;
-  d["passages"] = columns(log.passages);
-  d["outer"] = columns(log.outer);
-  d["closest"] = columns(log.closest);
-  d["dropped"] = log.dropped;
-  return d;
+  EventRecord r;
+  r.passages = columns(log.passages);
+  r.outer = columns(log.outer);
+  r.closest = columns(log.closest);
+  r.dropped = log.dropped;
+  return r;
 }
 
 template <class T, bool Compensated>
@@ -107,28 +102,18 @@ void register_engine(py::module_& m, const std::string& suffix) {
         py::arg("masses"), py::arg("positions"), py::arg("velocities"));
 
   m.def(("integrate_" + suffix).c_str(),
-        [](const std::string& method, const limb_array& masses, const limb_array& positions,
-           const limb_array& velocities, const limb_array& t_end, const limb_array& times, double rtol,
-           double atol, long long max_steps, double max_wall_time, int max_order, double initial_step,
-           const std::vector<double>& radii, int regularization, int pn, const std::vector<double>& c,
-           double merger_factor, int stop, int check_every, double distance_factor, double fixed_step, bool events,
-           long long max_events, double stop_distance, int stop_pair_i, int stop_pair_j) {
+        [](const std::string& method_name, const limb_array& masses, const limb_array& positions,
+           const limb_array& velocities, const limb_array& t_end, const limb_array& times, const Options& options,
+           const ChainOptions& chain, long long max_events) {
+          const Method method = method_from_name(method_name);
           State<T> s = read_state<T>(masses, positions, velocities);
           const std::vector<T> tend = read_limbs<T>(t_end, {}, "t");
           if (tend.size() != 1) throw py::value_error("t: expected one value");
           const std::vector<T> outs = read_limbs<T>(times, {}, "times");
-          if (method != "gbs" && method != "chain")
-            throw py::value_error("method: unknown method '" + method + "'");
-          if (!radii.empty() && radii.size() != static_cast<size_t>(s.n))
+          if (!chain.radii.empty() && chain.radii.size() != static_cast<size_t>(s.n))
             throw py::value_error("radii: expected one radius per body");
-          if (regularization < 0 || regularization > 1)
-            throw py::value_error("regularization: unknown regularization");
-          if (pn < 0 || pn > pn_all) throw py::value_error("pn: unknown post-Newtonian orders");
-          if (pn != 0 && method != "chain") throw py::value_error("pn: post-Newtonian terms need method 'chain'");
-          if (pn != 0 && c.size() != static_cast<size_t>(scalar_traits<T>::limbs))
+          if (chain.pn_orders != 0 && chain.light_speed.size() != static_cast<size_t>(scalar_traits<T>::limbs))
             throw py::value_error("c: expected the limbs of the speed of light");
-          // Stop condition and fixed-step mode: gbs only (validated again by the engine).
-          if (fixed_step != 0.0 && method != "gbs") throw py::value_error("fixed_step: needs method 'gbs'");
 
           const py::ssize_t n = s.n;
           std::vector<T> traj_t, traj_x, traj_v;
@@ -142,61 +127,44 @@ void register_engine(py::module_& m, const std::string& suffix) {
           };
 
           interrupt_poll poll;
-          Options opt = base_options(rtol, atol, max_steps, max_wall_time, max_order, initial_step);
-          opt.stop = static_cast<StopCondition>(stop);
-          opt.check_every = check_every;
-          opt.distance_factor = distance_factor;
-          opt.fixed_step = fixed_step;
+          Options opt = options;
           opt.poll = [&poll]() { return poll(); };
+          // The event log (methods/events.hpp), when asked for (max_events > 0): one per run.
+          if (max_events < 0) throw py::value_error("max_events: must be >= 0 (0: no event log)");
           EventLog log;
-          log.max_events = max_events;
-          if (events || (stop & static_cast<int>(StopCondition::pair_distance)) != 0) opt.events = &log;
-          opt.stop_distance = stop_distance;
-          opt.stop_pair_i = stop_pair_i;
-          opt.stop_pair_j = stop_pair_j;
+          if (max_events > 0) {
+            log.max_events = max_events;
+            opt.events = &log;
+          }
+          ChainReport report;
+          ChainOptions copt = chain;
+          if (method == Method::chain) copt.report = &report;
 
           T t = T(0);
           const T e0 = energy(s);
           Stats st;
-          ChainReport report;
           {
+            // std::invalid_argument from the engine's checks reaches Python as ValueError.
             py::gil_scoped_release nogil;
-            if (method == "gbs") {
-              st = integrate_gbs<T, Compensated>(s, t, tend[0], outs, on_output, opt);
-            } else {
-              ChainOptions copt;
-              copt.radii = radii;
-              copt.regularization = static_cast<ChainRegularization>(regularization);
-              copt.report = &report;
-              copt.pn_orders = pn;
-              copt.light_speed = c;
-              copt.merger_factor = merger_factor;
-              st = integrate_chain<T, Compensated>(s, t, tend[0], outs, on_output, opt, copt);
-            }
+            st = integrate<T, Compensated>(method, s, t, tend[0], outs, on_output, opt, copt);
           }
           if (poll.signalled()) throw py::error_already_set();
-          py::dict d = run_summary(s, t, st, e0);
+          RunRecord r = run_record(s, t, st, e0);
           // With post-Newtonian terms: the error of the energy bookkeeping (ChainReport).
-          if (pn != 0) d["energy_error"] = report.pn_energy_error;
-          d["collision_pair"] = py::make_tuple(report.collision_i, report.collision_j);
-          d["rechains"] = report.rechains;
-          d["stopped_by"] = static_cast<int>(st.stopped_by);
-          d["stop_pair"] = py::make_tuple(st.stop_i, st.stop_j);
-          if (opt.events != nullptr) d["events"] = event_dict(log);
+          if (chain.pn_orders != 0) r.energy_error = report.pn_energy_error;
+          r.collision_i = report.collision_i;
+          r.collision_j = report.collision_j;
+          r.rechains = report.rechains;
+          if (opt.events != nullptr) r.events = py::cast(event_record(log));
           const auto count = static_cast<py::ssize_t>(traj_t.size());
-          d["trajectory_t"] = write_limbs<T>(traj_t, {count});
-          d["trajectory_positions"] = write_limbs<T>(traj_x, {count, n, 3});
-          d["trajectory_velocities"] = write_limbs<T>(traj_v, {count, n, 3});
-          return d;
+          r.trajectory_t = write_limbs<T>(traj_t, {count});
+          r.trajectory_positions = write_limbs<T>(traj_x, {count, n, 3});
+          r.trajectory_velocities = write_limbs<T>(traj_v, {count, n, 3});
+          return r;
         },
         py::arg("method"), py::arg("masses"), py::arg("positions"), py::arg("velocities"), py::arg("t_end"),
-        py::arg("times"), py::arg("rtol"), py::arg("atol"), py::arg("max_steps"), py::arg("max_wall_time"),
-        py::arg("max_order"), py::arg("initial_step"), py::arg("radii") = std::vector<double>{},
-        py::arg("regularization") = 0, py::arg("pn") = 0, py::arg("c") = std::vector<double>{},
-        py::arg("merger_factor") = 8.0, py::arg("stop") = 0, py::arg("check_every") = 10,
-        py::arg("distance_factor") = 10.0, py::arg("fixed_step") = 0.0, py::arg("events") = false,
-        py::arg("max_events") = 1000000, py::arg("stop_distance") = 0.0, py::arg("stop_pair_i") = -1,
-        py::arg("stop_pair_j") = -1);
+        py::arg("times"), py::arg("options"), py::arg("chain"),
+        py::arg("max_events") = 0);
 }
 
 }  // namespace loschmidt::bind

@@ -8,10 +8,10 @@
 
 #include "interrupt.hpp"
 #include "limbs.hpp"
-#include "options.hpp"
+#include "types.hpp"
 #include "loschmidt/methods/lyapunov.hpp"
 #include "loschmidt/nbody/diagnostics.hpp"
-#include "register_engine.hpp"  // read_state
+#include "register_engine.hpp"  // read_state, run_record
 
 namespace loschmidt::bind {
 
@@ -20,8 +20,7 @@ void register_lyapunov(py::module_& m, const std::string& suffix) {
   m.def(("lyapunov_" + suffix).c_str(),
         [](const limb_array& masses, const limb_array& positions, const limb_array& velocities,
            const limb_array& tangent_positions, const limb_array& tangent_velocities, const limb_array& t_end,
-           const limb_array& times, double rtol, double atol, long long max_steps, double max_wall_time,
-           int max_order, double initial_step, double fixed_step, double renormalize) {
+           const limb_array& times, const Options& options, double renormalize) {
           State<T> s = read_state<T>(masses, positions, velocities);
           const py::ssize_t n = s.n;
           std::vector<T> tx = read_limbs<T>(tangent_positions, {n, 3}, "tangent positions");
@@ -40,8 +39,7 @@ void register_lyapunov(py::module_& m, const std::string& suffix) {
           };
 
           interrupt_poll poll;
-          Options opt = base_options(rtol, atol, max_steps, max_wall_time, max_order, initial_step);
-          opt.fixed_step = fixed_step;
+          Options opt = options;
           opt.poll = [&poll]() { return poll(); };
 
           T t = T(0);
@@ -55,22 +53,19 @@ void register_lyapunov(py::module_& m, const std::string& suffix) {
                                                     &report);
           }
           if (poll.signalled()) throw py::error_already_set();
-          py::dict d = run_summary(s, t, st, e0);
-          d["collision_pair"] = py::make_tuple(-1, -1);
-          d["rechains"] = 0;
+          RunRecord r = run_record(s, t, st, e0);
           const auto count = static_cast<py::ssize_t>(out_t.size());
-          d["output_t"] = write_limbs<T>(out_t, {count});
-          d["output_log_growth"] = py::array_t<double>(count, out_log.data());
-          d["log_growth"] = report.log_growth;
-          d["renormalizations"] = report.renormalizations;
-          d["tangent_positions"] = write_limbs<T>(tx, {n, 3});
-          d["tangent_velocities"] = write_limbs<T>(tv, {n, 3});
-          return d;
+          r.output_t = write_limbs<T>(out_t, {count});
+          r.output_log_growth = py::array_t<double>(count, out_log.data());
+          r.log_growth = report.log_growth;
+          r.renormalizations = report.renormalizations;
+          r.tangent_positions = write_limbs<T>(tx, {n, 3});
+          r.tangent_velocities = write_limbs<T>(tv, {n, 3});
+          return r;
         },
         py::arg("masses"), py::arg("positions"), py::arg("velocities"), py::arg("tangent_positions"),
-        py::arg("tangent_velocities"), py::arg("t_end"), py::arg("times"), py::arg("rtol"), py::arg("atol"),
-        py::arg("max_steps"), py::arg("max_wall_time"), py::arg("max_order"), py::arg("initial_step"),
-        py::arg("fixed_step"), py::arg("renormalize"));
+        py::arg("tangent_velocities"), py::arg("t_end"), py::arg("times"), py::arg("options"),
+        py::arg("renormalize"));
 }
 
 }  // namespace loschmidt::bind

@@ -31,12 +31,7 @@ from .precision import PRECISIONS
 from .status import STATUSES
 from .system import System
 
-try:
-    from importlib.metadata import PackageNotFoundError, version as _version
-
-    __version__ = _version("loschmidt")
-except PackageNotFoundError:  # pragma: no cover - running from a source tree
-    __version__ = getattr(_core, "__version__", "0+unknown")
+from ._version import __version__
 
 __all__ = [
     "__version__",

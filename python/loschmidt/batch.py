@@ -20,19 +20,11 @@ from typing import Any, Callable
 
 import numpy as np
 
-from . import _core
+from . import engine as _engine
+from . import options as _o
 from . import precision as _p
 from .ensemble import Ensemble
-from .integrate import (
-    DEFAULT_MERGER_FACTOR,
-    PN_ORDERS,
-    REGULARIZATIONS,
-    _check_method,
-    _check_pn,
-    _positive_or_none,
-    _time_limbs,
-    check_tolerance,
-)
+from .integrate import _time_limbs
 from .status import STATUSES, SUCCESS_STATUSES
 from .system import System
 
@@ -46,30 +38,15 @@ _SUCCESS = np.array([STATUSES[i][0] in SUCCESS_STATUSES for i in range(len(STATU
 # validation
 
 
-def batch_options(
-    t: Any,
-    *,
-    precision: str = "dd",
-    method: str = "gbs",
-    tol: float | None = None,
-    atol: float | None = None,
-    max_steps: int | None = None,
-    max_wall_time: float | None = None,
-    max_order: int | None = None,
-    initial_step: float | None = None,
-    radii: Any = None,
-    regularization: str | None = None,
-    pn: Any = None,
-    c: Any = None,
-    merger_factor: float | None = None,
-) -> dict:
+def batch_options(t: Any, *, precision: str = "dd", method: str | None = None, **options: Any) -> dict:
     """Validate the options of a batch (as ``integrate`` does) and return them in a plain form.
 
     The result holds only JSON-friendly values (``t`` as its exact decimal string in the working
-    precision, unset budgets as None) and is what sweeps record in their manifest. The chain
-    method's options (``radii``, ``regularization``, ``pn``, ``c``, ``merger_factor``) appear only
-    when given, ``pn`` as a sorted list of orders and ``c`` as its exact decimal string in the
-    working precision, so definitions without them keep their form.
+    precision, unset budgets as None) and is what sweeps record in their manifest
+    (``loschmidt.options.Settings.manifest``). The chain method's options (``radii``,
+    ``regularization``, ``pn``, ``c``, ``merger_factor``) appear only when given, ``pn`` as a sorted
+    list of orders and ``c`` as its exact decimal string in the working precision, so definitions
+    without them keep their form.
 
     Parameters
     ----------
@@ -77,10 +54,8 @@ def batch_options(
         Time span.
     precision, method : str, optional
         As for ``integrate_batch``.
-    tol, atol, max_steps, max_wall_time, max_order, initial_step : number, optional
-        As for ``integrate_batch``.
-    radii, regularization, pn, c, merger_factor : optional
-        The chain method's options, as for ``integrate_batch``.
+    **options
+        The batch options (:mod:`loschmidt.options`), as for ``integrate_batch``.
 
     Returns
     -------
@@ -95,68 +70,20 @@ def batch_options(
     ('1.000000000000000055511151231257827021181583404541015625e-1', 1e-13, None)
     """
     prec = _p.check_precision(precision)
-    method = _check_method(method)
+    # None (automatic) stays None until the number of bodies is known (``_run``), unless the options
+    # decide; with none that only one method takes, both methods accept the same checks.
+    method = _o.resolve_method(method, None, options)
     t_limbs = _time_limbs(t, prec, "t")
-    rtol = check_tolerance(tol, prec, "tol")
-    a_tol = rtol if atol is None else _positive_or_none(atol, "atol")
-    steps = _positive_or_none(max_steps, "max_steps", integer=True)
-    wall = _positive_or_none(max_wall_time, "max_wall_time")
-    order = _positive_or_none(max_order, "max_order", integer=True)
-    if order is not None and order > 2**31 - 1:
-        raise ValueError(f"max_order: must be at most {2**31 - 1}, got {max_order}")
-    if order is not None and order < 2:
-        raise ValueError(f"max_order: must be at least 2, got {max_order}")
-    h0 = _positive_or_none(initial_step, "initial_step")
-    out = {
-        "t": str(_p.to_string(t_limbs, exact=True)),
-        "precision": prec,
-        "method": method,
-        "tol": rtol,
-        "atol": a_tol,
-        "max_steps": steps,
-        "max_wall_time": wall,
-        "max_order": order,
-        "initial_step": h0,
-    }
-    out.update(_chain_options(method, prec, radii, regularization, pn, c, merger_factor))
-    return out
+    settings = _o.resolve(options, method=method or "chain", precision=prec, entry="batch", t_limbs=t_limbs)
+    return {"t": str(_p.to_string(t_limbs, exact=True)), "precision": prec, "method": method,
+            **settings.manifest("batch")}
 
 
-def _check_radii(radii: Any, method: str) -> list:
-    if isinstance(radii, (str, bytes)):
-        raise TypeError("radii: expected numbers, one per body (shared) or an (M, N) array")
-    try:
-        r = np.asarray(radii, dtype=np.float64)
-    except (TypeError, ValueError):
-        raise TypeError("radii: expected numbers, one per body (shared) or an (M, N) array") from None
-    if r.ndim not in (1, 2) or r.size == 0:
-        raise ValueError(f"radii: expected shape (N,) or (M, N), got {r.shape}")
-    if not np.all(np.isfinite(r)) or np.any(r < 0):
-        raise ValueError("radii: must be finite and non-negative")
-    if method != "chain":
-        raise ValueError(f"radii: collisions are detected by method='chain', got method={method!r}")
-    return r.tolist()
-
-
-def _chain_options(method: str, prec: str, radii: Any, regularization: Any, pn: Any, c: Any,
-                   merger_factor: Any) -> dict:
-    """The chain options that were given, validated, in JSON-friendly form."""
-    out: dict = {}
-    if radii is not None:
-        out["radii"] = _check_radii(radii, method)
-    if regularization is not None:
-        if regularization not in REGULARIZATIONS:
-            raise ValueError(f"regularization: expected one of {REGULARIZATIONS}, got {regularization!r}")
-        if method != "chain":
-            raise ValueError(f"regularization: only used by method='chain', got method={method!r}")
-        out["regularization"] = regularization
-    mask, c_limbs, factor = _check_pn(pn, c, merger_factor, method, prec)
-    if mask:
-        out["pn"] = [order for order, bit in sorted(PN_ORDERS.items()) if mask & bit]
-        out["c"] = str(_p.to_string(np.asarray(c_limbs), exact=True))
-        if merger_factor is not None:
-            out["merger_factor"] = factor
-    return out
+def _settings(opts: dict) -> "_o.Settings":
+    """The Settings of ``batch_options`` output (checked again: cheap, and the form is the one
+    recorded, so a manifest read back gives the same engine options)."""
+    given = {k: v for k, v in opts.items() if k not in ("t", "precision", "method")}
+    return _o.resolve(given, method=opts["method"], precision=opts["precision"], entry="batch")
 
 
 def _threads(threads: Any, count: int) -> int:
@@ -310,10 +237,35 @@ class BatchResult:
         """(M,) bool: the run (both legs of a round trip) ended as asked."""
         return _SUCCESS[self.fields["status_code"]]
 
+    def reversible(self, threshold: float | None = None) -> np.ndarray:
+        """(M,) bool: round trips that came back, both legs finished and ``delta <= threshold``.
+
+        Parameters
+        ----------
+        threshold : float, optional
+            Largest ``delta`` that counts (default ``loschmidt.chaos.REVERSIBLE_THRESHOLD``, 1e-10,
+            a phase-space distance in N-body units).
+
+        Returns
+        -------
+        numpy.ndarray
+            False for every system of an ``integrate_batch`` (no round trip) and for NaN deltas.
+        """
+        from .chaos import REVERSIBLE_THRESHOLD, _positive
+
+        limit = REVERSIBLE_THRESHOLD if threshold is None else _positive(threshold, "threshold")
+        if self.task != "roundtrip":
+            raise ValueError("reversible: only a roundtrip_batch result has round trips")
+        with np.errstate(invalid="ignore"):
+            return self.success & (np.asarray(self.fields["delta"], dtype=float) <= limit)
+
     def __repr__(self) -> str:
         ok = int(np.count_nonzero(self.success))
-        return (f"BatchResult(task={self.task!r}, systems={len(self)}, bodies={self.n}, "
-                f"precision={self.precision!r}, succeeded={ok})")
+        text = (f"BatchResult(task={self.task!r}, systems={len(self)}, bodies={self.n}, "
+                f"precision={self.precision!r}, succeeded={ok}")
+        if self.task == "roundtrip":
+            text += f", reversible={int(np.count_nonzero(self.reversible()))}"
+        return text + ")"
 
     # -- systems -------------------------------------------------------------------------------------
     def systems(self, i: Any) -> dict:
@@ -392,29 +344,26 @@ def _run(task: str, masses: Any, positions: Any, velocities: Any, t: Any, option
     ml, x, v = _members(masses, positions, velocities, prec)
     n_threads = _threads(threads, ml.shape[0])
     t_limbs = _time_limbs(opts["t"], prec, "t")
+    opts["method"] = _o.resolve_method(opts["method"], ml.shape[1],
+                                       carries_radii=isinstance(masses, Ensemble) and masses.radii is not None)
     given = opts.get("radii")
-    if isinstance(masses, Ensemble) and masses.radii is not None and opts["method"] == "chain":
+    if isinstance(masses, Ensemble) and masses.radii is not None:
+        _o.system_radii(masses.radii, opts["method"])  # refused with another method, as integrate does
         if given is not None:
             raise ValueError("radii: the ensemble has radii of its own; pass one or the other")
-        given = masses.radii  # as integrate takes a System's radii with method "chain"
+        given = masses.radii  # as integrate takes a System's radii
     raw = _execute(task, ml, x, v, opts, _radii_for(given, ml.shape[0], ml.shape[1]), n_threads, progress)
     fields = _fields(task, raw)
     return BatchResult(task, opts["method"], prec, opts["tol"], t_limbs, ml, x, v, fields)
 
 
 def _execute(task: str, ml: np.ndarray, x: np.ndarray, v: np.ndarray, opts: dict, radii: list, threads: int,
-             progress: Callable[[int], Any] | None) -> dict:
-    """The engine's batch kernel on validated limb arrays and ``batch_options`` output."""
+             progress: Callable[[int], Any] | None) -> Any:
+    """The engine's batch kernel on validated limb arrays and ``batch_options`` output: a
+    ``_core.BatchRecord``."""
     prec = opts["precision"]
     t_limbs = _time_limbs(opts["t"], prec, "t")
-    mask, c_limbs, factor = _check_pn(opts.get("pn"), opts.get("c"), opts.get("merger_factor"), opts["method"], prec)
-    kernel = getattr(_core, f"batch_{task}_{prec}")
-    return kernel(
-        opts["method"], ml, x, v, t_limbs, opts["tol"], opts["atol"], opts["max_steps"] or 10**9,
-        opts["max_wall_time"] or math.inf, opts["max_order"] or 0, opts["initial_step"] or 0.0, threads,
-        progress, radii=radii, regularization=REGULARIZATIONS.index(opts.get("regularization", REGULARIZATIONS[0])),
-        pn=mask, c=c_limbs, merger_factor=factor if mask else DEFAULT_MERGER_FACTOR,
-    )
+    return _engine.batch(task, ml, x, v, t_limbs, _settings(opts), radii, threads, progress)
 
 
 def _radii_for(radii: Any, count: int, n: int) -> list:
@@ -427,37 +376,41 @@ def _radii_for(radii: Any, count: int, n: int) -> list:
     return r.ravel().tolist()
 
 
-def _fields(task: str, raw: dict) -> dict:
-    code = np.asarray(raw["status"], dtype=np.int64)
+def _fields(task: str, raw: Any) -> dict:
+    """BatchResult's fields from the engine's ``_core.BatchRecord``."""
+    code = np.asarray(raw.status, dtype=np.int64)
     f = {
         "status_code": code,
         "status": _STATUS_NAMES[code],
-        "steps": np.asarray(raw["steps"], dtype=np.int64),
-        "rejected": np.asarray(raw["rejected"], dtype=np.int64),
-        "evaluations": np.asarray(raw["evaluations"], dtype=np.int64),
-        "wall_time": np.asarray(raw["wall_time"], dtype=np.float64),
-        "energy_error": raw["energy_error"],
-        "pair_i": np.asarray(raw["pair_i"], dtype=np.int64),
-        "pair_j": np.asarray(raw["pair_j"], dtype=np.int64),
-        "rechains": np.asarray(raw["rechains"], dtype=np.int64),
+        "steps": np.asarray(raw.steps, dtype=np.int64),
+        "rejected": np.asarray(raw.rejected, dtype=np.int64),
+        "evaluations": np.asarray(raw.evaluations, dtype=np.int64),
+        "wall_time": np.asarray(raw.wall_time, dtype=np.float64),
+        "energy_error": raw.energy_error,
+        "pair_i": np.asarray(raw.pair_i, dtype=np.int64),
+        "pair_j": np.asarray(raw.pair_j, dtype=np.int64),
+        "rechains": np.asarray(raw.rechains, dtype=np.int64),
+        "stopped_by": np.asarray(raw.stopped_by, dtype=np.int64),
+        "stop_i": np.asarray(raw.stop_i, dtype=np.int64),
+        "stop_j": np.asarray(raw.stop_j, dtype=np.int64),
     }
     if task == "integrate":
-        f.update(t=raw["t"], positions=raw["positions"], velocities=raw["velocities"])
+        f.update(t=raw.t, positions=raw.positions, velocities=raw.velocities)
     else:
-        fcode = np.asarray(raw["forward_status"], dtype=np.int64)
+        fcode = np.asarray(raw.forward_status, dtype=np.int64)
         f.update(
             forward_status_code=fcode,
             forward_status=_STATUS_NAMES[fcode],
-            forward_energy_error=raw["forward_energy_error"],
-            forward_t=raw["t"],
-            forward_positions=raw["positions"],
-            forward_velocities=raw["velocities"],
-            returned_t=raw["returned_t"],
-            returned_positions=raw["returned_positions"],
-            returned_velocities=raw["returned_velocities"],
-            delta=raw["delta"],
-            delta_position=raw["delta_position"],
-            delta_velocity=raw["delta_velocity"],
+            forward_energy_error=raw.forward_energy_error,
+            forward_t=raw.t,
+            forward_positions=raw.positions,
+            forward_velocities=raw.velocities,
+            returned_t=raw.returned_t,
+            returned_positions=raw.returned_positions,
+            returned_velocities=raw.returned_velocities,
+            delta=raw.delta,
+            delta_position=raw.delta_position,
+            delta_velocity=raw.delta_velocity,
         )
     return f
 
@@ -468,21 +421,11 @@ def integrate_batch(
     velocities: Any = None,
     t: Any = None,
     *,
-    method: str = "gbs",
+    method: str | None = None,
     precision: str = "dd",
-    tol: float | None = None,
-    atol: float | None = None,
     threads: int | None = None,
-    max_steps: int | None = None,
-    max_wall_time: float | None = None,
-    max_order: int | None = None,
-    initial_step: float | None = None,
-    radii: Any = None,
-    regularization: str | None = None,
-    pn: Any = None,
-    c: Any = None,
-    merger_factor: float | None = None,
     progress: Callable[[int], Any] | None = None,
+    **options: Any,
 ) -> BatchResult:
     """Integrate M systems over the time span ``t`` on ``threads`` threads (default: all cores).
 
@@ -505,34 +448,19 @@ def integrate_batch(
         Ensemble.
     t : number or decimal string
         Time span (of each leg, for a round trip).
-    method : {"gbs", "chain"}, optional
-        Integration method (default ``"gbs"``).
+    method : {None, "gbs", "chain"}, optional
+        Integration method; default None chooses by the number of bodies
+        (``loschmidt.options.resolve_method``: ``"chain"`` for few bodies).
     precision : {"f64", "f64c", "dd", "qd"}, optional
         Working precision (default ``"dd"``).
-    tol, atol : float, optional
-        Relative and absolute tolerances (default: the precision's ``DEFAULT_TOLERANCE``).
     threads : int, optional
         C++ threads (default: all cores, at most one per system).
-    max_steps : int, optional
-        Budget of steps per system.
-    max_wall_time : float, optional
-        Budget of seconds per system.
-    max_order : int, optional
-        Highest extrapolation column.
-    initial_step : float, optional
-        First step size.
-    radii : array-like, shape (N,) or (M, N), optional
-        Body radii (method ``"chain"``: status ``collision`` on contact); default the Ensemble's own.
-    regularization : {"logarithmic", "time_transformed"}, optional
-        Time transformation of the chain method.
-    pn : tuple of {1, 2, 2.5}, optional
-        Post-Newtonian terms (method ``"chain"``), as for ``integrate``.
-    c : number or decimal string, optional
-        Speed of light in N-body units; required with ``pn``.
-    merger_factor : float, optional
-        Merger distance in summed Schwarzschild radii (default 8), with ``pn``.
     progress : callable, optional
         Called on the calling thread about every 100 ms with the number of systems finished.
+    **options
+        The integration options of a batch (:mod:`loschmidt.options`), below; budgets apply per
+        system (and leg).
+    <options>
 
     Returns
     -------
@@ -548,10 +476,11 @@ def integrate_batch(
     >>> b.systems(1)["final"] == loschmidt.integrate(loschmidt.ics.pythagorean(), 10, method="chain").system
     True
     """
-    options = dict(precision=precision, method=method, tol=tol, atol=atol, max_steps=max_steps,
-                   max_wall_time=max_wall_time, max_order=max_order, initial_step=initial_step, radii=radii,
-                   regularization=regularization, pn=pn, c=c, merger_factor=merger_factor)
+    options = dict(options, precision=precision, method=method)
     return _run("integrate", masses, positions, velocities, t, options, threads, progress)
+
+
+integrate_batch.__doc__ = _o.document(integrate_batch.__doc__, "batch")
 
 
 def roundtrip_batch(
@@ -560,21 +489,11 @@ def roundtrip_batch(
     velocities: Any = None,
     t: Any = None,
     *,
-    method: str = "gbs",
+    method: str | None = None,
     precision: str = "dd",
-    tol: float | None = None,
-    atol: float | None = None,
     threads: int | None = None,
-    max_steps: int | None = None,
-    max_wall_time: float | None = None,
-    max_order: int | None = None,
-    initial_step: float | None = None,
-    radii: Any = None,
-    regularization: str | None = None,
-    pn: Any = None,
-    c: Any = None,
-    merger_factor: float | None = None,
     progress: Callable[[int], Any] | None = None,
+    **options: Any,
 ) -> BatchResult:
     """Round trips (Loschmidt tests) of M systems: forward ``t``, negate velocities, forward ``t``,
     negate; ``delta`` is the phase-space distance to the start in the working precision.
@@ -591,34 +510,19 @@ def roundtrip_batch(
         Ensemble.
     t : number or decimal string
         Time span (of each leg, for a round trip).
-    method : {"gbs", "chain"}, optional
-        Integration method (default ``"gbs"``).
+    method : {None, "gbs", "chain"}, optional
+        Integration method; default None chooses by the number of bodies
+        (``loschmidt.options.resolve_method``: ``"chain"`` for few bodies).
     precision : {"f64", "f64c", "dd", "qd"}, optional
         Working precision (default ``"dd"``).
-    tol, atol : float, optional
-        Relative and absolute tolerances (default: the precision's ``DEFAULT_TOLERANCE``).
     threads : int, optional
         C++ threads (default: all cores, at most one per system).
-    max_steps : int, optional
-        Budget of steps per system and leg.
-    max_wall_time : float, optional
-        Budget of seconds per system and leg.
-    max_order : int, optional
-        Highest extrapolation column.
-    initial_step : float, optional
-        First step size.
-    radii : array-like, shape (N,) or (M, N), optional
-        Body radii (method ``"chain"``: status ``collision`` on contact); default the Ensemble's own.
-    regularization : {"logarithmic", "time_transformed"}, optional
-        Time transformation of the chain method.
-    pn : tuple of {1, 2, 2.5}, optional
-        Post-Newtonian terms (method ``"chain"``), as for ``integrate``.
-    c : number or decimal string, optional
-        Speed of light in N-body units; required with ``pn``.
-    merger_factor : float, optional
-        Merger distance in summed Schwarzschild radii (default 8), with ``pn``.
     progress : callable, optional
         Called on the calling thread about every 100 ms with the number of systems finished.
+    **options
+        The integration options of a batch (:mod:`loschmidt.options`), below; budgets apply per
+        system (and leg).
+    <options>
 
     Returns
     -------
@@ -635,7 +539,8 @@ def roundtrip_batch(
     >>> float(b.delta[0]) == loschmidt.roundtrip(ens.system(0), 1, method="chain").delta
     True
     """
-    options = dict(precision=precision, method=method, tol=tol, atol=atol, max_steps=max_steps,
-                   max_wall_time=max_wall_time, max_order=max_order, initial_step=initial_step, radii=radii,
-                   regularization=regularization, pn=pn, c=c, merger_factor=merger_factor)
+    options = dict(options, precision=precision, method=method)
     return _run("roundtrip", masses, positions, velocities, t, options, threads, progress)
+
+
+roundtrip_batch.__doc__ = _o.document(roundtrip_batch.__doc__, "batch")

@@ -24,11 +24,13 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from . import options as _options
 from . import precision as _p
 from .integrate import DEFAULT_TOLERANCE, Result, integrate, phase_distances
 from .system import System
 
 __all__ = [
+    "REVERSIBLE_THRESHOLD",
     "RoundTrip",
     "roundtrip",
     "Amplification",
@@ -48,6 +50,14 @@ __all__ = [
 
 # ---------------------------------------------------------------------------------------------------
 # round trips
+
+#: Round-trip distance (phase-space distance of the returned state to the start, N-body units) at or
+#: below which a round trip counts as reversible: it "came back". Read by ``RoundTrip.reversible``,
+#: ``BatchResult.reversible``, the plots, the report, the demo and the command line. 1e-10 is ten
+#: orders of magnitude below the size of the system (order 1 in N-body units) and six above f64's
+#: round-off, so a double-precision integration of a regular orbit passes and one swamped by
+#: amplified round-off does not (common practice: a fixed absolute threshold on the Loschmidt test).
+REVERSIBLE_THRESHOLD = 1e-10
 
 
 @dataclass(frozen=True)
@@ -91,13 +101,13 @@ class RoundTrip:
         """Both legs finished."""
         return self.forward.success and self.backward is not None and self.backward.success
 
-    def reversible(self, threshold: float = 1e-10) -> bool:
+    def reversible(self, threshold: float = REVERSIBLE_THRESHOLD) -> bool:
         """Whether the start was recovered.
 
         Parameters
         ----------
         threshold : float, optional
-            Largest ``delta`` that counts (default 1e-10).
+            Largest ``delta`` that counts (default ``REVERSIBLE_THRESHOLD``, 1e-10).
 
         Returns
         -------
@@ -515,9 +525,6 @@ class Lyapunov:
         return self.result.success
 
 
-#: Options of ``integrate`` that ``lyapunov`` passes on.
-_LYAPUNOV_OPTIONS = ("tol", "atol", "max_steps", "max_wall_time", "max_order", "initial_step", "fixed_step")
-
 #: Largest allowed ``renormalize`` (2^300: the tangent's squared norm stays far from overflow).
 MAX_RENORMALIZE = 2.0**300
 
@@ -618,8 +625,8 @@ def lyapunov(
     seed : int, optional
         Seed of the default tangent (default 0).
     **options
-        ``tol``, ``atol``, ``max_steps``, ``max_wall_time``, ``max_order``, ``initial_step``,
-        ``fixed_step``, as for ``integrate``.
+        The integration options ``lyapunov`` takes (:mod:`loschmidt.options`), below.
+    <options>
 
     Returns
     -------
@@ -633,23 +640,18 @@ def lyapunov(
     >>> lam.success, round(lam.exponent, 2), len(lam.times)
     (True, 0.33, 100)
     """
-    from . import _core
-    from .integrate import (_check_fixed_budget, _check_method, _output_times, _positive_or_none, _time_limbs,
-                            _wrap, check_tolerance)
+    from . import engine as _engine
+    from .integrate import _output_times, _time_limbs, _wrap
 
     s = _check_system(system)
-    if not isinstance(method, str):
-        raise TypeError(f"method: expected 'gbs', got {type(method).__name__}")
+    method = _options.check_method(method)
     if method != "gbs":
-        _check_method(method)  # unknown names get the usual message
-        raise ValueError("method: lyapunov supports gbs")
-    for name in options:
-        if name not in _LYAPUNOV_OPTIONS:
-            raise TypeError(f"{name}: not an option of lyapunov (expected one of {_LYAPUNOV_OPTIONS})")
+        raise ValueError(f"method: lyapunov supports gbs, got method={method!r}")
     prec = s.precision
     t_limbs = _time_limbs(t, prec, "t")
     if not np.any(t_limbs):
         raise ValueError("t: must be nonzero")
+    settings = _options.resolve(options, method=method, precision=prec, entry="lyapunov", t_limbs=t_limbs)
     ren = _positive(renormalize, "renormalize")
     if not 2.0 <= ren <= MAX_RENORMALIZE:
         raise ValueError(f"renormalize: must lie in [2, 2^300], got {renormalize!r}")
@@ -657,39 +659,25 @@ def lyapunov(
         raise ValueError(f"seed: expected a non-negative integer, got {seed!r}")
     w = default_tangent(s, int(seed)) if tangent is None else _check_tangent(tangent, s.n)
     outs = _output_times(_default_times(t, 100, prec) if times is None else times, t_limbs, prec)
-    rtol = check_tolerance(options.get("tol"), prec, "tol")
-    atol = options.get("atol")
-    a_tol = rtol if atol is None else _positive_or_none(atol, "atol")
-    steps = _positive_or_none(options.get("max_steps"), "max_steps", integer=True) or 10**9
-    wall = _positive_or_none(options.get("max_wall_time"), "max_wall_time") or math.inf
-    fixed = options.get("fixed_step")
-    h_fixed = 0.0 if fixed is None else _positive_or_none(fixed, "fixed_step")
-    order = _positive_or_none(options.get("max_order"), "max_order", integer=True, maximum=2**31 - 1) or 0
-    _check_fixed_budget(fixed, t_limbs, options.get("max_steps"), steps)
-    if order and order < 3 and fixed is None:
-        raise ValueError(f"max_order: must be at least 3, got {order}")
-    h0 = options.get("initial_step")
-    if h0 is not None and fixed is not None:
-        raise ValueError("initial_step: not used with fixed_step (every step has the fixed size)")
-    h0 = 0.0 if h0 is None else _positive_or_none(h0, "initial_step")
+    rtol = settings["tol"]
 
-    raw = getattr(_core, f"lyapunov_{prec}")(
-        s.limbs("masses"), s.limbs("positions"), s.limbs("velocities"),
-        _p.to_limbs(w[0], prec), _p.to_limbs(w[1], prec), t_limbs, outs,
-        rtol, a_tol, steps, wall, order, h0, h_fixed, ren,
-    )
+    raw = _engine.lyapunov(s.limbs("masses"), s.limbs("positions"), s.limbs("velocities"), _p.to_limbs(w[0], prec),
+                           _p.to_limbs(w[1], prec), t_limbs, outs, settings, ren)
     result = _wrap(s, raw, "gbs", prec, rtol, False)
-    wt = np.stack([_p.to_float(raw["tangent_positions"]), _p.to_float(raw["tangent_velocities"])])
+    wt = np.stack([_p.to_float(raw.tangent_positions), _p.to_float(raw.tangent_velocities)])
     wt = wt / np.sqrt(np.sum(wt * wt))
     return Lyapunov(
-        times=np.asarray(_p.to_float(raw["output_t"]), dtype=float).reshape(-1),
-        log_growth=np.asarray(raw["output_log_growth"], dtype=float),
-        final_log_growth=float(raw["log_growth"]),
-        span=float(_p.to_float(raw["t"])),
+        times=np.asarray(_p.to_float(raw.output_t), dtype=float).reshape(-1),
+        log_growth=np.asarray(raw.output_log_growth, dtype=float),
+        final_log_growth=float(raw.log_growth),
+        span=float(_p.to_float(raw.t)),
         tangent=wt,
-        renormalizations=int(raw["renormalizations"]),
+        renormalizations=int(raw.renormalizations),
         result=result,
     )
+
+
+lyapunov.__doc__ = _options.document(lyapunov.__doc__, "lyapunov")
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -702,7 +690,7 @@ LADDER = {
     "dd": (1e-16, 1e-19, 1e-22, 1e-25, 1e-28, 1e-30),
     "qd": (1e-34, 1e-40, 1e-46, 1e-52, 1e-56, 1e-60),
 }
-_ORDER = ("f64", "dd", "qd")
+_ORDER = tuple(name for name, p in _p.TABLE.items() if not p.compensated)  # narrowest first
 
 
 @dataclass(frozen=True)

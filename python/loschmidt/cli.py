@@ -1,6 +1,6 @@
 """The ``loschmidt`` command line.
 
-    loschmidt demo [--out DIR] [--quick]            the built-in scenario (about a minute; --quick ~20 s)
+    loschmidt demo [--out DIR] [--quick]            the built-in scenario (about 2 CPU-minutes; --quick less)
     loschmidt run CONFIG.toml | --family NAME ...     one system: integrate or round trip, a table
     loschmidt sweep CONFIG.toml [--resume] [--scheduler ADDRESS] [--threads N]
     loschmidt plot STORE [STORE ...] --kind KIND -o FILE.png
@@ -10,7 +10,8 @@
 
 Configuration files are TOML (``tomllib``, or ``tomli`` before Python 3.11); every key is checked,
 and an unknown or invalid one is reported with its section and a non-zero exit. Relative paths in a
-configuration file are taken relative to the file's directory. Exit codes: 0 done, 1 failed, 2 bad
+configuration file (outputs: the store, the orbit picture) are taken from the directory the command
+runs in, so running an example file never writes beside it. Exit codes: 0 done, 1 failed, 2 bad
 usage or configuration, 130 interrupted by Ctrl-C (finished work is kept).
 """
 
@@ -128,13 +129,6 @@ def _method(v: Any, where: str) -> str:
     return _check_str(v, where, METHODS)
 
 
-def _tolerance(v: Any, where: str) -> float:
-    v = _check_number(v, where, positive=True)
-    if v >= 1:
-        raise ConfigError(f"{where}: must lie in (0, 1), got {v!r}")
-    return v
-
-
 def _length(v: Any, where: str) -> Any:
     if isinstance(v, str):
         return _check_str(v.lower(), where, ("pc", "au"))
@@ -144,17 +138,65 @@ def _length(v: Any, where: str) -> Any:
 _pos_int = _check_int
 _pos_num = lambda v, w: _check_number(v, w, positive=True)  # noqa: E731
 _span = lambda v, w: _check_number(v, w, positive=True, allow_string=True)  # noqa: E731
+_coordinate = lambda v, w: _check_number(v, w, positive=True, allow_string=True)  # noqa: E731
+
+
+def _signed_span(v: Any, where: str) -> Any:
+    """A time span of one run: negative integrates backward (as ``integrate`` does), zero is refused."""
+    v = _check_number(v, where, allow_string=True)
+    from decimal import Decimal
+
+    if Decimal(str(v).strip()) == 0:
+        raise ConfigError(f"{where}: must be non-zero (negative integrates backward), got {v!r}")
+    return v
+
+
 _real = lambda v, w: _check_number(v, w)  # noqa: E731
 _seed = lambda v, w: _check_int(v, w, minimum=0)  # noqa: E731
 _masses3 = lambda v, w: _check_numbers(v, w, 3)  # noqa: E731
 _any_str = lambda v, w: _check_str(v, w)  # noqa: E731
 _path = _any_str
 
-#: Options of the integrations (task options of "roundtrip" and "integrate", [run] of a run file).
-_INTEGRATION = {
-    "precision": _precision, "method": _method, "tol": _tolerance, "atol": _pos_num, "max_steps": _pos_int,
-    "max_wall_time": _pos_num, "max_order": lambda v, w: _check_int(v, w, minimum=2), "initial_step": _pos_num,
+
+def _integer(v: Any, where: str) -> int:
+    """Any integer: its range is the option's to check (loschmidt.options), with the same message."""
+    return _check_int(v, where, minimum=-(2**63))
+
+
+#: How a TOML value of each kind of option (``Option.toml``) is read; the option's own check
+#: (loschmidt.options) then runs where the option is used, with the message every entry point gives.
+_TOML_KINDS: dict[str, Callable] = {
+    "number": lambda v, w: _check_number(v, w),
+    "integer": _integer,
+    "string": lambda v, w: _check_str(v, w),
+    "span": lambda v, w: _check_number(v, w, allow_string=True),
+    "numbers": lambda v, w: _check_numbers(v, w),
+    "orders": lambda v, w: _pn_orders(v, w),
+    "boolean": _check_bool,
+    "integers": lambda v, w: _check_integers(v, w),
 }
+
+
+def _check_integers(v: Any, where: str) -> list:
+    if not isinstance(v, list):
+        raise ConfigError(f"{where}: expected a list of integers, got {v!r}")
+    return [_integer(x, f"{where}[{k}]") for k, x in enumerate(v)]
+
+
+def _option_checks(names: tuple) -> dict[str, Callable]:
+    """TOML checks of integration options, mechanically from their declarations."""
+    from .options import OPTIONS
+
+    return {name: (_light_speed if name == "c" else _TOML_KINDS[OPTIONS[name].toml]) for name in names}
+
+
+def _integration(entry: str) -> dict[str, Callable]:
+    """Keys of a [run] or [task] section that are integration options: precision, method and every
+    option of the entry point (``loschmidt.options.names_for``)."""
+    from .options import names_for
+
+    return {"precision": _precision, "method": _method, **_option_checks(names_for(entry))}
+
 
 #: Ensemble families of a sweep file: name -> (builder arguments and their checks).
 _ENSEMBLES: dict[str, dict[str, Callable]] = {
@@ -165,9 +207,13 @@ _ENSEMBLES: dict[str, dict[str, Callable]] = {
 }
 _ENSEMBLE_REQUIRED = {"free-fall-grid": ("nx", "ny"), "free-fall-random": ("n", "seed"), "virial-triples": ("n", "seed")}
 
+
 def _pn_orders(v: Any, where: str) -> list:
-    if not isinstance(v, list) or not v or not all(_is_number(x) and x in (1, 2, 2.5) for x in v):
-        raise ConfigError(f"{where}: expected a list of post-Newtonian orders among 1, 2, 2.5, got {v!r}")
+    from .options import PN_ORDERS
+
+    if not isinstance(v, list) or not v or not all(_is_number(x) for x in v):
+        orders = ", ".join(f"{o:g}" for o in PN_ORDERS)
+        raise ConfigError(f"{where}: expected a list of post-Newtonian orders among {orders}, got {v!r}")
     return v
 
 
@@ -177,26 +223,20 @@ def _light_speed(v: Any, where: str) -> Any:
     return _check_number(v, where, positive=True, allow_string=True)
 
 
-def _regularization(v: Any, where: str) -> str:
-    from .integrate import REGULARIZATIONS
+def _lifetime_checks() -> dict[str, Callable]:
+    from .tasks import LIFETIME_OPTIONS
 
-    return _check_str(v, where, REGULARIZATIONS)
+    return {"t_max": _span, "interval": _span, "precision": _precision, "method": _method,
+            **_option_checks(LIFETIME_OPTIONS)}
 
-
-#: Options of the chain method in a sweep: collisions (shared radii) and post-Newtonian terms.
-_CHAIN = {"radii": _check_numbers, "regularization": _regularization, "pn": _pn_orders, "c": _light_speed,
-          "merger_factor": lambda v, w: _check_number(v, w)}
-_CHAIN_PN = {k: _CHAIN[k] for k in ("regularization", "pn", "c", "merger_factor")}
 
 #: Tasks of a sweep file: name -> (option checks, required options).
 _TASKS: dict[str, tuple[dict[str, Callable], tuple[str, ...]]] = {
-    "roundtrip": ({"t": _span, **_INTEGRATION, **_CHAIN}, ("t",)),
-    "integrate": ({"t": _span, **_INTEGRATION, **_CHAIN}, ("t",)),
+    "roundtrip": ({"t": _span, **_integration("batch")}, ("t",)),
+    "integrate": ({"t": _span, **_integration("batch")}, ("t",)),
     "amplification": ({"t": _span, "perturbation": _span, "body": lambda v, w: _check_int(v, w, minimum=0),
-                       "axis": lambda v, w: _check_int(v, w, minimum=0), **_INTEGRATION, **_CHAIN}, ("t",)),
-    "lifetime": ({"t_max": _span, "interval": _span, "precision": _precision, "method": _method, "tol": _tolerance,
-                  "max_steps": _pos_int, "max_wall_time": _pos_num, "distance_factor": _pos_num, **_CHAIN_PN},
-                 ("t_max",)),
+                       "axis": lambda v, w: _check_int(v, w, minimum=0), **_integration("batch")}, ("t",)),
+    "lifetime": (_lifetime_checks(), ("t_max",)),
 }
 
 #: Single systems of a run file (and ``run --family``): name -> argument checks.
@@ -204,7 +244,7 @@ _SYSTEMS: dict[str, dict[str, Callable]] = {
     "pythagorean": {},
     "figure-eight": {},
     "lagrange": {"masses": _masses3, "side": _pos_num, "eccentricity": _real},
-    "free-fall": {"x": _pos_num, "y": _pos_num, "masses": _masses3},
+    "free-fall": {"x": _coordinate, "y": _coordinate, "masses": _masses3},
     "custom": {"masses": _check_numbers, "positions": _check_vectors, "velocities": _check_vectors,
                "radii": _check_numbers},
 }
@@ -221,7 +261,7 @@ _SWEEP_SECTIONS = {
 }
 _RUN_SECTIONS = {
     "system": None,
-    "run": {"t": _span, "roundtrip": _check_bool, "outputs": _pos_int, "plot": _path, **_INTEGRATION},
+    "run": {"t": _signed_span, "roundtrip": _check_bool, "outputs": _pos_int, "plot": _path, **_integration("integrate")},
     "units": _UNITS,
 }
 
@@ -311,7 +351,7 @@ def sweep_config(path: Any) -> dict:
         if not units:
             raise ConfigError(f"{where}: [task] c = \"units\" needs a [units] section (mass, length)")
         options["c"] = _scale(units, where).decimal("c")
-    base = Path(path).resolve().parent
+    base = Path.cwd()  # outputs go where the command runs (a user-chosen folder), never beside the file
     store["path"] = str((base / store["path"]).resolve()) if not Path(store["path"]).is_absolute() else store["path"]
     return {"ensemble": (family, ens_args), "task": (name, options), "store": store, "execution": execution,
             "units": units, "text": text, "base": base}
@@ -330,7 +370,7 @@ def run_config(path: Any) -> dict:
                         _SYSTEM_REQUIRED.get(family, ()), skip=("family",))
     run = _check_table(data.get("run", {}), "run", _RUN_SECTIONS["run"], where)
     units = _check_table(data.get("units", {}), "units", _UNITS, where)
-    base = Path(path).resolve().parent
+    base = Path.cwd()  # as for sweep files: outputs go where the command runs
     if "plot" in run and not Path(run["plot"]).is_absolute():
         run["plot"] = str(base / run["plot"])
     return {"system": (family, args), "run": run, "units": units, "base": base}
@@ -442,16 +482,21 @@ def _cmd_run(args: argparse.Namespace) -> int:
         raise _Usage("run: the time span is needed (--t T, or t in [run])")
     if args.t is not None:
         try:
-            _span(args.t, "--t")
+            _signed_span(args.t, "--t")
         except ConfigError as exc:
             raise _Usage(str(exc)) from None
-    opts = {k: run[k] for k in ("method", "tol", "atol", "max_steps", "max_wall_time", "max_order", "initial_step")
-            if k in run}
+    from .options import names_for
+
+    opts = {k: run[k] for k in ("method",) + names_for("integrate") if k in run}
     precision = run.get("precision", "dd")
     family, sys_args = cfg["system"]
     system = _build_system(family, sys_args, precision, where)
     t = run["t"]
     scale = _scale(cfg["units"], where)
+    if opts.get("c") == "units":  # the speed of light in the [units] section's units
+        if scale is None:
+            raise ConfigError(f"{where}: [run] c = \"units\" needs a [units] section (mass, length)")
+        opts["c"] = scale.decimal("c")
     from tqdm.auto import tqdm
 
     legs = 2 if run.get("roundtrip") else 1
@@ -466,7 +511,9 @@ def _cmd_run(args: argparse.Namespace) -> int:
         times = [total * Fraction(k, outputs) for k in range(1, outputs + 1)]
     bar = tqdm(total=legs, desc=f"{family} {precision}", unit="leg", file=sys.stderr, disable=args.no_progress)
     try:
-        fwd = integrate(system, t, times=times, **opts)
+        # the reported run has no output times: landing on them changes the steps, hence the
+        # evaluations and (in a chaotic system) the end state; the picture is drawn from its own run
+        fwd = integrate(system, t, **opts)
         bar.update(1)
         back = None
         if run.get("roundtrip") and fwd.success:
@@ -477,7 +524,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     finally:
         bar.close()
 
-    method = opts.get("method", "gbs")
+    method = fwd.method
     print(f"system     {family}, {system.n} bodies, precision {precision}, method {method}, tol {fwd.tol:.0e}")
     if scale is not None:
         print(f"units      mass {scale.mass:g} M_sun, length {scale.length:.6g} m; t = {float(t):g} = "
@@ -506,16 +553,25 @@ def _cmd_run(args: argparse.Namespace) -> int:
         o = outcome(fwd.system)
         detail = ""
         if o.kind == "escape" and o.escaper is not None:
-            detail = f" of body {o.escaper + 1}"
-        if o.binary is not None and o.binary_bound:
+            detail = f" of body {o.escaper}"
+        if o.binary is not None and o.binary_bound and (o.n == 2 or o.hierarchical or o.kind != "bound"):
             i, j = o.binary
-            detail += (f"; binary of bodies {i + 1} and {j + 1}: semimajor axis {o.semimajor_axis:.4g}, "
-                       f"eccentricity {o.eccentricity:.4g}")
+            detail += (f"; {'pair' if o.n == 2 else 'binary'} of bodies {i} and {j}: semimajor axis "
+                       f"{o.semimajor_axis:.4g}, eccentricity {o.eccentricity:.4g}")
         print(f"outcome at t = {fwd.t:g}: {o.kind}{detail} ({o.reason})")
-    if run.get("plot") and fwd.trajectory is not None:
+    if run.get("plot") and times is not None:
         from . import plots
 
-        pos = np.concatenate([system.positions[None], fwd.trajectory.positions])
+        try:
+            drawn = integrate(system, t, times=times, **opts)
+        except (ValueError, TypeError) as exc:
+            raise ConfigError(f"{where}: [run] {exc}") from None
+        if drawn.trajectory is None:
+            raise _Failed(f"orbit plot: the run for the picture stopped before its first output ({drawn.status})")
+        print(f"orbit plot: drawn from a second run that lands on {len(times)} output times ({drawn.status}, "
+              f"{drawn.evaluations} evaluations, energy error {drawn.energy_error:.2e}); the table above is the "
+              "run without output times")
+        pos = np.concatenate([system.positions[None], drawn.trajectory.positions, drawn.system.positions[None]])
         fig = plots.orbit_plot(pos, masses=[float(m) for m in system.masses], units=plots.axis_units(scale),
                                title=f"{family}: orbits to t = {float(t):g} ({precision}, {method})")
         print(f"orbit plot: {plots.save(fig, run['plot'])}")
@@ -642,13 +698,25 @@ def _store_label(store: Path) -> str:
     return _label(store, read_manifest(store), read_settings(store))
 
 
+def _stores(names: Any) -> list:
+    """The store directories named on the command line; one that is missing or holds no store is bad
+    usage (exit 2), reported before any work."""
+    from .report import read_manifest
+
+    stores = [Path(s) for s in names]
+    for s in stores:
+        try:
+            read_manifest(s)
+        except ValueError as exc:
+            raise _Usage(str(exc)) from None
+    return stores
+
+
 def _cmd_plot(args: argparse.Namespace) -> int:
     from . import plots
     from .report import load_results, read_manifest, read_settings, store_scale
 
-    stores = [Path(s) for s in args.stores]
-    for s in stores:
-        read_manifest(s)
+    stores = _stores(args.stores)
     pixels = plots.parse_size(args.size) if args.size else None
     scale = next((store_scale(read_settings(s)) for s in stores if store_scale(read_settings(s)) is not None), None)
     u = plots.axis_units(scale)
@@ -686,20 +754,20 @@ def _cmd_plot(args: argparse.Namespace) -> int:
 
 
 def _member_plot(store: Path, kind: str, args: argparse.Namespace, u: Any) -> Any:
-    """Orbit or amplification of one member of a store, integrated again with the store's settings."""
+    """Orbit or amplification of one member of a store, integrated again with every one of the
+    store's settings (``report.rerun_options``: an option it does not know is an error, never dropped)."""
     import numpy as np
 
-    from . import System, growth, integrate, plots
-    from .report import load_results, read_manifest
+    from . import System, amplification, growth, integrate, plots
+    from .report import load_results, read_manifest, rerun_options
     from .store import limbs, read_store
 
     manifest = read_manifest(store)
-    d = manifest["definition"]
-    opts = d.get("options", {})
-    t = opts.get("t", opts.get("t_max"))
-    if t is None:
-        raise _Failed(f"{store}: the sweep's options give no time span (t)")
-    df = load_results(store, ["member", "delta", "x", "y"])
+    try:
+        ro = rerun_options(manifest)
+    except ValueError as exc:
+        raise _Failed(f"{store}: {exc}") from None
+    df = load_results(store, ["member", "delta", "x", "y", "status", "t_reached", "lifetime", "outcome"])
     if len(df) == 0:
         raise _Failed(f"{store}: no finished members yet")
     members = np.asarray(df["member"])
@@ -714,19 +782,36 @@ def _member_plot(store: Path, kind: str, args: argparse.Namespace, u: Any) -> An
         hit = np.flatnonzero(members == args.member)
         if not hit.size:
             raise _Usage(f"--member: {args.member} is not among the finished members of {store} "
-                         f"(0 .. {int(members.max())})")
+                         f"(members are numbered from 0: 0 .. {int(members.max())})")
         row = int(hit[0])
     member = int(members[row])
-    table = read_store(store, format="arrow", columns=["start_masses", "start_positions", "start_velocities"])
+    cols = ["start_masses", "start_positions", "start_velocities"]
+    from .report import store_columns
+
+    has_radii = "start_radii" in store_columns(store)
+    table = read_store(store, format="arrow", columns=cols + (["start_radii"] if has_radii else []))
     m = limbs(table, "start_masses")[row]
     x = limbs(table, "start_positions")[row]
     v = limbs(table, "start_velocities")[row]
-    precision = d.get("precision") or opts.get("precision") or "dd"
-    system = System(m, x, v, precision=precision)
-    kw = {"method": opts.get("method", "gbs"), "tol": opts.get("tol")}
+    radii = ro.radii
+    if radii is None and has_radii:
+        radii = [float(r) for r in np.asarray(limbs(table, "start_radii")[row]).reshape(-1)]
+    system = System(m, x, v, precision=ro.precision, radii=radii)
+    kw = dict(ro.integrate)
+    t: Any = ro.t
+    stored = str(df["status"].iloc[row]) if "status" in df.columns else None
+    if ro.task == "lifetime" and "t_reached" in df.columns and stored not in ("merger", "collision"):
+        # the lifetime task follows a member in spans until its escape test holds; the picture runs
+        # one integration over the same span (to the time the member's run ended, not beyond: an
+        # escaper would fly off the picture). A merger or a contact ends the rerun by itself.
+        t = repr(float(df["t_reached"].iloc[row]))
     where = f"member {member}" + (f" (x = {df['x'].iloc[row]:.4g}, y = {df['y'].iloc[row]:.4g})"
                                   if "x" in df.columns else "")
-    print(f"{kind}: {where} of {store}, t = {float(t):g}, {precision}, {kw['method']}", flush=True)
+    from .report import _number_text
+
+    shown = ", ".join(f"{k} {_number_text(v)}" for k, v in kw.items())
+    print(f"{kind}: {where} of {store}, t = {float(t):g}, {ro.precision}, {shown}"
+          + (f", radii {radii}" if radii is not None else ""), flush=True)
     if kind == "orbit":
         from fractions import Fraction
 
@@ -735,10 +820,26 @@ def _member_plot(store: Path, kind: str, args: argparse.Namespace, u: Any) -> An
         total = exact_fraction(t, "t")
         times = [total * Fraction(k, 1000) for k in range(1, 1001)]
         r = integrate(system, t, times=times, **kw)
-        if r.trajectory is None or len(r.trajectory) == 0:
+        if r.trajectory is None:
             raise _Failed(f"{where}: the integration stopped before the first output ({r.status})")
-        pos = np.concatenate([system.positions[None], r.trajectory.positions])
-        return plots.orbit_plot(pos, units=u, title=args.title or f"Orbits of {where}, {precision}")
+        path = r.trajectory.positions
+        if not r.success and len(path) < 100:
+            # stopped early (a merger, a contact): draw the span it covered, at 1000 output times
+            from .precision import to_fraction
+
+            span = to_fraction(r.system.limbs("time")) - to_fraction(system.limbs("time"))
+            if span != 0:
+                again = integrate(system, span, times=[span * Fraction(k, 1000) for k in range(1, 1000)], **kw)
+                if again.trajectory is not None and len(again.trajectory) > len(path):
+                    path = again.trajectory.positions
+        pos = np.concatenate([system.positions[None], path, r.system.positions[None]])
+        ended = f"ended {r.status} at t = {r.t:.4g}"
+        print(f"  the rerun {ended}" + (f"; the store records status {stored}" if stored else ""))
+        return plots.orbit_plot(pos, units=u, title=args.title or f"Orbits of {where}, {ro.precision} ({ended})")
+    if ro.task == "amplification":
+        opts = {k: ro.task_options[k] for k in ("perturbation", "body", "axis") if k in ro.task_options}
+        a = amplification(system, t, **opts, **kw)
+        return plots.amplification_plot(a, units=u, title=args.title or f"Amplification of a displacement, {where}")
     g = growth(system, t, intervals=100, **kw)
     return plots.amplification_plot(g, units=u, title=args.title or f"Growth of a small perturbation, {where}")
 
@@ -746,12 +847,22 @@ def _member_plot(store: Path, kind: str, args: argparse.Namespace, u: Any) -> An
 def _cmd_report(args: argparse.Namespace) -> int:
     from .report import write_report
 
-    path = write_report(args.stores, args.output, title=args.title, threshold=args.threshold)
+    path = write_report(_stores(args.stores), args.output, title=args.title, threshold=args.threshold)
     print(f"wrote {path}")
     return EXIT_OK
 
 
+#: Modules the benchmark suite needs beyond the package's own dependencies (its peers).
+BENCH_NEEDS = ("scipy",)
+
+
 def _cmd_bench(args: argparse.Namespace) -> int:
+    import importlib.util
+
+    missing = [m for m in BENCH_NEEDS if importlib.util.find_spec(m) is None]
+    if missing:
+        raise _Usage(f"the benchmarks need {', '.join(missing)} (their peers): pip install "
+                     f"{' '.join(missing)}, or from the checkout pip install \".[bench]\"")
     bench = _find_benchmarks()
     if bench is None:
         print("loschmidt bench: the benchmarks are not installed with the package; they run from a source "
@@ -809,6 +920,8 @@ def _positive_int(text: str) -> int:
 
 
 def _parser() -> argparse.ArgumentParser:
+    from .chaos import REVERSIBLE_THRESHOLD
+
     p = argparse.ArgumentParser(prog="loschmidt", description="High-precision few-body gravitational dynamics: "
                                 "integrate, reverse, and tell true solutions from round-off noise.")
     p.add_argument("--version", action="store_true", help="print the version and exit")
@@ -819,7 +932,8 @@ def _parser() -> argparse.ArgumentParser:
                        "region, round trips in f64 and dd, lifetimes, a map and a report.")
     d.add_argument("--out", default="loschmidt-demo", help="directory for the stores, pictures and report "
                    "(default ./loschmidt-demo)")
-    d.add_argument("--quick", action="store_true", help="a coarser grid (about 15-20 s instead of a minute)")
+    d.add_argument("--quick", action="store_true", help="a coarser grid: 32 triples instead of 120 (about 35 "
+                   "CPU-seconds instead of 2 CPU-minutes)")
     d.add_argument("--qd", type=int, default=0, metavar="N",
                    help="also run quad-double round trips for up to N members dd left irreversible "
                    "(slow: 15-40 s each)")
@@ -838,7 +952,8 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("--tol", type=_positive_float, default=None, help="relative tolerance (default per precision)")
     r.add_argument("--max-wall-time", dest="max_wall_time", type=_positive_float, default=None, help="budget in seconds")
     r.add_argument("--roundtrip", action="store_true", help="integrate back with reversed velocities")
-    r.add_argument("--threshold", type=_positive_float, default=1e-10, help="reversible when delta <= this (1e-10)")
+    r.add_argument("--threshold", type=_positive_float, default=REVERSIBLE_THRESHOLD,
+                   help=f"reversible when delta <= this ({REVERSIBLE_THRESHOLD:.0e})")
     r.add_argument("--outputs", type=_positive_int, default=None, help="output times for the orbit plot (500; each costs a landing)")
     r.add_argument("--plot", default=None, metavar="FILE.png", help="draw the orbits")
     r.add_argument("--no-progress", action="store_true")
@@ -863,7 +978,8 @@ def _parser() -> argparse.ArgumentParser:
     pl.add_argument("-o", "--output", required=True, metavar="FILE.png")
     pl.add_argument("--member", type=int, default=None, help="member for amplification/orbit (default: the "
                     "median round trip)")
-    pl.add_argument("--threshold", type=_positive_float, default=1e-10, help="reversible when delta <= this (1e-10)")
+    pl.add_argument("--threshold", type=_positive_float, default=REVERSIBLE_THRESHOLD,
+                    help=f"reversible when delta <= this ({REVERSIBLE_THRESHOLD:.0e})")
     pl.add_argument("--size", default=None, metavar="WxH", help="image size in pixels, e.g. 1200x900")
     pl.add_argument("--dpi", type=_positive_float, default=150)
     pl.add_argument("--title", default=None)
@@ -873,7 +989,7 @@ def _parser() -> argparse.ArgumentParser:
     rp.add_argument("stores", nargs="+", metavar="STORE")
     rp.add_argument("-o", "--output", required=True, metavar="report.html")
     rp.add_argument("--title", default=None)
-    rp.add_argument("--threshold", type=_positive_float, default=1e-10)
+    rp.add_argument("--threshold", type=_positive_float, default=REVERSIBLE_THRESHOLD)
     rp.set_defaults(func=_cmd_report)
 
     sc = sub.add_parser("scatter", help="binary-single encounters into a resumable store, and their cross sections")
@@ -919,10 +1035,10 @@ def main(argv: list[str] | None = None) -> int:
         print(f"loschmidt {args.command}: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
     except _Failed as exc:
-        print(f"loschmidt {args.command}: {exc}", file=sys.stderr)
+        print(f"loschmidt {args.command}: error: {exc}", file=sys.stderr)
         return EXIT_FAILED
     except ValueError as exc:  # the library's checks name the argument at fault
-        print(f"loschmidt {args.command}: {exc}", file=sys.stderr)
+        print(f"loschmidt {args.command}: error: {exc}", file=sys.stderr)
         return EXIT_FAILED
 
 

@@ -43,8 +43,11 @@ __all__ = [
 #: Mass of each black hole, in solar masses (the mass unit); the length unit is one parsec.
 SCALE_MASS = 1e6
 
-#: Round-trip distance (N-body units) at or below which a member counts as reversible.
-THRESHOLD = 1e-10
+from .chaos import REVERSIBLE_THRESHOLD  # noqa: E402
+
+#: Round-trip distance (N-body units) at or below which a member counts as reversible
+#: (``loschmidt.chaos.REVERSIBLE_THRESHOLD``).
+THRESHOLD = REVERSIBLE_THRESHOLD
 
 #: Post-Newtonian orders of the demo's relativistic lifetime sweep.
 PN_ORDERS = (1, 2, 2.5)
@@ -66,10 +69,10 @@ class DemoSettings:
     label: str
 
 
-#: The default (~1 minute on 2 idle cores: about 55 CPU-seconds of dd round trips, 4 of f64 and
-#: 15 of lifetimes, measured at t = 10 with the chain method).
+#: The default: about 2 CPU-minutes (116 s user time measured on the 2-core x86_64 development
+#: machine; 64 s of wall-clock time when it was lightly loaded, 412 s under load average 14-18).
 FULL = DemoSettings(10, 17, 10.0, ("f64", "dd"), "chain", 200.0, 2.0, 8, 60.0, "full")
-#: ``--quick`` (~15-20 s): a coarser grid, the same physics.
+#: ``--quick`` (34 CPU-seconds, measured as above): a coarser grid, the same physics.
 QUICK = DemoSettings(5, 9, 10.0, ("f64", "dd"), "chain", 200.0, 2.0, 8, 60.0, "quick")
 
 _PRECISION_NAMES = {"f64": "double", "f64c": "compensated double", "dd": "double-double", "qd": "quad-double"}
@@ -144,7 +147,7 @@ def run_demo(out_dir: Any = "loschmidt-demo", quick: bool = False, qd_members: i
         sweep = _sweep(Sweep, out, ens, task="roundtrip", store=store, chunk_size=settings.chunk_size,
                        threads=threads, t=settings.t, precision=prec, method=settings.method,
                        max_wall_time=settings.max_wall_time)
-        write_settings(store, f"{prec} ({_PRECISION_NAMES[prec]})", units)
+        write_settings(store, f"round trips, {prec} ({_PRECISION_NAMES[prec]})", units)
         sweep.run(progress=progress)
         df = sweep.results(columns=_SUMMARY_COLUMNS)
         tables[prec] = df
@@ -159,11 +162,12 @@ def run_demo(out_dir: Any = "loschmidt-demo", quick: bool = False, qd_members: i
         hard = np.sort(worst[:qd_members])  # the worst dd round trips, in member order
         if hard.size:
             store = out / f"{settings.label}-roundtrip-qd-{hard.size}"  # one store per selection
-            say(f"Round trips in qd (quad-double) for the {hard.size} worst member(s) dd left irreversible -> {store}")
-            sweep = _sweep(Sweep, out, ens[hard], task="roundtrip", store=store, chunk_size=1, threads=threads,
+            say(f"Round trips in qd (quad-double) for the {hard.size} worst member(s) dd left irreversible "
+                f"(grid members {', '.join(map(str, hard))}; column grid_member of the store) -> {store}")
+            sweep = _sweep(Sweep, out, _selection(ens, hard), task="roundtrip", store=store, chunk_size=1, threads=threads,
                            t=settings.t, precision="qd", method=settings.method,
                            max_wall_time=4 * settings.max_wall_time)
-            write_settings(store, "qd (quad-double)", units)
+            write_settings(store, "round trips, qd (quad-double)", units)
             sweep.run(progress=progress)
             df = sweep.results(columns=_SUMMARY_COLUMNS)
             tables["qd"] = df
@@ -176,7 +180,7 @@ def run_demo(out_dir: Any = "loschmidt-demo", quick: bool = False, qd_members: i
     life = _sweep(Sweep, out, ens, task="lifetime", store=life_store, chunk_size=settings.chunk_size,
                   threads=threads, t_max=settings.lifetime_t_max, interval=settings.lifetime_interval,
                   precision="f64", method=settings.method)
-    write_settings(life_store, "f64 (double)", units)
+    write_settings(life_store, "lifetimes, f64 (Newtonian)", units)
     life.run(progress=progress)
     lifetimes = life.results(columns=["member", "ix", "iy", "x", "y", "status", "lifetime", "outcome"])
 
@@ -188,7 +192,7 @@ def run_demo(out_dir: Any = "loschmidt-demo", quick: bool = False, qd_members: i
     pn_life = _sweep(Sweep, out, ens, task="lifetime", store=pn_store, chunk_size=settings.chunk_size,
                      threads=threads, t_max=settings.lifetime_t_max, interval=settings.lifetime_interval,
                      precision="f64", method=settings.method, pn=PN_ORDERS, c=sc.decimal("c"))
-    write_settings(pn_store, "f64 + PN (escape or merger)", units)
+    write_settings(pn_store, "lifetimes, f64 + PN (escape or merger)", units)
     pn_life.run(progress=progress)
     pn_lifetimes = pn_life.results(columns=["member", "ix", "iy", "x", "y", "status", "lifetime", "outcome"])
 
@@ -212,8 +216,27 @@ def run_demo(out_dir: Any = "loschmidt-demo", quick: bool = False, qd_members: i
                            out / "lifetime-map.png")
     from .report import write_report
 
+    x, y = ens.params["x"][member], ens.params["y"][member]
+    # the threshold uses the largest amplification reached within the span (a perturbation that
+    # reaches order unity at any time counts); the curve can fall again after a close encounter,
+    # so its value at the end is given beside it
+    logs = np.asarray(thr.growth.log_factor, dtype=float) / np.log(10)
+    peak_t = float(np.asarray(thr.growth.times, dtype=float)[int(np.argmax(logs))])
+    end_log = float(logs[-1])
+    amp_text = (f"peak 10^{logs.max():.1f} = {thr.amplification:.3g} at t = {peak_t:.3g} "
+                f"({peak_t * kyr:.0f} kyr); 10^{end_log:.1f} at the end of the span")
+    threshold_rows = [
+        ("member", f"{member} (body 2 released at x = {x:.4f} pc, y = {y:.4f} pc), {rep_prec}, method {settings.method}"),
+        ("displacement amplified to order unity within t = "
+         f"{settings.t:g} ({settings.t * kyr:.0f} kyr)", f"{thr.delta:.3g} pc = {thr.metres:.3g} m = "
+                                                         f"{thr.planck_lengths:.3g} Planck lengths"),
+        ("amplification (the threshold uses the peak)", amp_text),
+        ("round-trip delta of that integration", f"{thr.roundtrip_delta:.2g}"),
+        ("resolves perturbations that small", "yes" if thr.trustworthy else "no"),
+    ]
     report_path = write_report([*stores.values(), life_store, pn_store], out / "report.html",
-                               title="loschmidt demo: three black holes in free fall")
+                               title="loschmidt demo: three black holes in free fall",
+                               sections=[("Irreversibility threshold", threshold_rows)])
 
     # summary
     say("")
@@ -241,20 +264,34 @@ def run_demo(out_dir: Any = "loschmidt-demo", quick: bool = False, qd_members: i
     say(f"with relativity (1PN + 2PN + 2.5PN): {kinds.get('merger', 0)} mergers, {kinds.get('escape', 0)} escapes "
         f"of {len(pn_lifetimes)} (Newtonian: {newton.get('escape', 0)} escapes); a merger is a pair closer than "
         f"8 times its summed Schwarzschild radii")
-    x, y = ens.params["x"][member], ens.params["y"][member]
-    say(f"threshold of member {member} (body 3 released at x = {x:.4f} pc, y = {y:.4f} pc), {rep_prec}:")
+    say(f"threshold of member {member} (body 2 released at x = {x:.4f} pc, y = {y:.4f} pc), {rep_prec}:")
     say(f"  a displacement of {thr.delta:.3g} pc = {thr.metres:.3g} m = {thr.planck_lengths:.3g} Planck lengths "
-        f"grows to order unity within {settings.t * kyr:.0f} kyr (amplification {thr.amplification:.3g});")
+        f"grows to order unity within {settings.t * kyr:.0f} kyr;")
+    say(f"  amplification {amp_text} (the threshold uses the peak: reaching order unity at any time counts);")
     verdict = "resolves" if thr.trustworthy else "does NOT resolve"
     say(f"  the {rep_prec} integration (round-trip delta {thr.roundtrip_delta:.2g}) {verdict} perturbations that small")
     say("")
     say(f"files in {out}:")
     for p in (map_path, hist_path, life_path, report_path):
         say(f"  {p}")
+    from .report import map_kind, read_manifest
+
     for p in (*stores.values(), life_store, pn_store):
-        say(f"  {p}/ (Parquet store; `loschmidt plot {p} --kind map -o map.png`)")
+        kind = map_kind(read_manifest(p))
+        say(f"  {p}/ (Parquet store; `loschmidt plot {p} --kind {kind} -o {kind}.png`)")
     say(f"done in {time.perf_counter() - started:.0f} s")
     return 0
+
+
+def _selection(ens: Any, members: np.ndarray) -> Any:
+    """Some members of an ensemble as an ensemble of their own, each remembering its number in the
+    whole one (param ``grid_member``): a store numbers its members from 0, and the qd store's
+    member 0 is then, say, grid member 7 of the f64 and dd stores."""
+    from .ensemble import Ensemble
+
+    sub = ens[members]
+    return Ensemble(sub.masses, sub.positions, sub.velocities, params={**sub.params, "grid_member": members},
+                    family=sub.family, radii=sub.radii, meta=sub.meta)
 
 
 def _sweep(cls: Any, out: Path, *args: Any, **kwargs: Any) -> Any:

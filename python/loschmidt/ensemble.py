@@ -301,8 +301,8 @@ class Ensemble:
         -------
         System
         """
-        import loschmidt
-        from loschmidt.precision import limb_count
+        from .precision import limb_count
+        from .system import System
 
         i = self._index(i)
         k = limb_count(precision)
@@ -313,7 +313,7 @@ class Ensemble:
             return out
 
         radii = None if self._radii is None else self._radii[i].copy()
-        return loschmidt.System.from_limbs(
+        return System.from_limbs(
             limbs(self._masses[i]),
             limbs(self._positions[i]),
             limbs(self._velocities[i]),

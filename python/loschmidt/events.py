@@ -59,11 +59,16 @@ class EventLog:
     dropped: int
 
     @classmethod
-    def _from_raw(cls, raw: dict) -> "EventLog":
-        def cols(d: Any) -> dict:
-            return {k: np.asarray(d[k]) for k in ("t", "i", "j", "distance")}
+    def _from_record(cls, record: Any, t0: float = 0.0) -> "EventLog":
+        """From the engine's ``_core.EventRecord``; ``t0`` is added to the times (the engine counts
+        from the start of the run)."""
 
-        return cls(cols(raw["passages"]), cols(raw["outer"]), cols(raw["closest"]), int(raw["dropped"]))
+        def cols(c: Any) -> dict:
+            t = np.asarray(c.t)
+            return {"t": t + t0 if t0 else t, "i": np.asarray(c.i), "j": np.asarray(c.j),
+                    "distance": np.asarray(c.distance)}
+
+        return cls(cols(record.passages), cols(record.outer), cols(record.closest), int(record.dropped))
 
     def pair(self, i: int, j: int) -> dict:
         """The passages of one pair.

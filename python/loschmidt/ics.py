@@ -24,11 +24,10 @@ Ensembles:
   region (Agekyan & Anosova 1967).
 - :func:`virial_triples` random triples in virial equilibrium with a chosen angular momentum.
 
-Scattering (defined in :mod:`loschmidt.scattering`, listed here with the other families):
-
-- :func:`binary_single` one binary-single encounter, the incomer on its exact hyperbola from
-  infinity; :func:`binary_single_ensemble` seeded encounters with impact parameters uniform in
-  area (Hut & Bahcall 1983, ApJ 268, 319).
+Scattering: :func:`loschmidt.scattering.binary_single` (one binary-single encounter, the incomer
+on its exact hyperbola from infinity) and :func:`loschmidt.scattering.binary_single_ensemble`
+(seeded encounters with impact parameters uniform in area; Hut & Bahcall 1983, ApJ 268, 319) live
+in their own module, which builds on this one.
 """
 
 from __future__ import annotations
@@ -59,8 +58,6 @@ __all__ = [
     "free_fall_random",
     "free_fall_region",
     "virial_triples",
-    "binary_single",
-    "binary_single_ensemble",
 ]
 
 _BATCH = 4096  # candidates drawn per batch by the seeded families (fixed: results do not depend on n)
@@ -75,10 +72,10 @@ FIGURE_EIGHT_PERIOD = 6.32591398
 # helpers
 # ---------------------------------------------------------------------------------------------
 def _system(masses, positions, velocities, precision, context: str = ""):
-    import loschmidt
+    from .system import System
 
     try:
-        return loschmidt.System(masses, positions, velocities, precision=precision)
+        return System(masses, positions, velocities, precision=precision)
     except ValueError as exc:  # e.g. bodies that coincide, or values beyond double range, once rounded
         if not context:
             raise
@@ -259,7 +256,7 @@ def lagrange(
     eccentricity e about total mass M starting at periapsis (homographic motion), with period
     2 pi sqrt((s / (1 - e))^3 / M).
 
-    Body 1 starts at (0, 0), body 2 at (s, 0), body 3 at (s/2, s sqrt(3)/2), shifted to the centre of
+    Body 0 starts at (0, 0), body 1 at (s, 0), body 2 at (s/2, s sqrt(3)/2), shifted to the centre of
     mass. Everything (sqrt(3), the centre of mass, omega) is computed in mpmath at the working
     precision plus 64 guard bits and rounded once by System. Linearly stable only when
     27 (m1 m2 + m2 m3 + m3 m1) < M^2 (Gascheau 1843; Routh 1875): see :func:`lagrange_stable`;
@@ -665,7 +662,7 @@ def free_fall_region(x: Any, y: Any) -> np.ndarray:
     Parameters
     ----------
     x, y : float or array-like
-        Coordinates of body 3 (broadcast together).
+        Coordinates of body 2, the released one (broadcast together).
 
     Returns
     -------
@@ -719,9 +716,10 @@ def _free_fall_arrays(x: np.ndarray, y: np.ndarray) -> np.ndarray:
 def free_fall_grid(nx: int, ny: int, masses: Sequence[Any] = (1, 1, 1)) -> Ensemble:
     """Free-fall triples on a grid over the Agekyan-Anosova region (Agekyan & Anosova 1967).
 
-    Bodies 1 and 2 sit at (-1/2, 0) and (1/2, 0), body 3 at (x, y); all at rest, z = 0. The region
+    Bodies 0 and 1 sit at (-1/2, 0) and (1/2, 0), body 2 at (x, y) (counted from 0, as everywhere);
+    all at rest, z = 0. The region
     x >= 0, y >= 0, (x + 1/2)^2 + y^2 <= 1 lies in the box [0, 1/2] x [0, sqrt(3)/2]; the box is cut
-    into nx x ny equal cells and body 3 is put at each cell centre,
+    into nx x ny equal cells and body 2 is put at each cell centre,
 
         x_i = (2 i + 1) / (4 nx),            i = 0 .. nx - 1
         y_j = (2 j + 1) sqrt(3) / (4 ny),    j = 0 .. ny - 1,
@@ -731,7 +729,7 @@ def free_fall_grid(nx: int, ny: int, masses: Sequence[Any] = (1, 1, 1)) -> Ensem
     the box. Cell centres avoid the degenerate edges (y = 0 collinear, x = 0 isosceles, the corner
     (0, 0) a symmetric triple collision). Members are ordered row by row: j, then i.
 
-    ``params``: ``ix``, ``iy`` (cell indices, int64), ``x``, ``y`` (body 3). ``meta``: nx, ny.
+    ``params``: ``ix``, ``iy`` (cell indices, int64), ``x``, ``y`` (body 2). ``meta``: nx, ny.
     Masses are used as the doubles given (the centre of mass is not moved to the origin: it would
     cost a rounding; it is at rest anyway).
 
@@ -782,7 +780,7 @@ def free_fall_grid(nx: int, ny: int, masses: Sequence[Any] = (1, 1, 1)) -> Ensem
 
 
 def free_fall_random(n: int, seed: int, masses: Sequence[Any] = (1, 1, 1)) -> Ensemble:
-    """Free-fall triples with body 3 uniform over the Agekyan-Anosova region.
+    """Free-fall triples with body 2 uniform over the Agekyan-Anosova region.
 
     Rejection from the box [0, 1/2) x [0, sqrt(3)/2) in batches of 4096 candidates. Layout as in
     :func:`free_fall_grid`; ``params``: ``x``, ``y``; ``meta``: seed.
@@ -1068,7 +1066,3 @@ def virial_triples(
         family="virial_triples",
         meta={"seed": seed, "energy": E, "planar": bool(planar)},
     )
-
-
-# the scattering family lives in its own module (it imports this module's helpers when called)
-from .scattering import binary_single, binary_single_ensemble  # noqa: E402

@@ -14,13 +14,16 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from . import _core
+from . import engine as _engine
+from . import options as _o
 from . import precision as _p
 from .status import SUCCESS_STATUSES, status_message, status_name
 from .system import System
 
 __all__ = [
     "METHODS",
+    "CHAIN_MAX_BODIES",
+    "resolve_method",
     "DEFAULT_TOLERANCE",
     "integrate",
     "Result",
@@ -30,22 +33,21 @@ __all__ = [
     "merged",
 ]
 
-#: Names of the integration methods, ``"gbs"`` (Gragg-Bulirsch-Stoer in Cartesian coordinates) and
-#: ``"chain"`` (the same extrapolation over a regularized leapfrog in chain coordinates).
-METHODS = ("gbs", "chain")
+#: Names of the integration methods (declared in :mod:`loschmidt.options`).
+METHODS = _o.METHODS
 
-#: Regularizations of the chain method's leapfrog substep.
-REGULARIZATIONS = ("logarithmic", "time_transformed")
+#: Regularizations of the chain method's leapfrog substep (declared in :mod:`loschmidt.options`).
+REGULARIZATIONS = _o.REGULARIZATIONS
 
-#: Post-Newtonian orders the chain method can switch on, and their bits in the engine's mask.
-PN_ORDERS = {1: 1, 2: 2, 2.5: 4}
+#: Post-Newtonian orders and their bits in the engine's mask (declared in :mod:`loschmidt.options`).
+PN_ORDERS = _o.PN_ORDERS
 
-#: Default merger distance in units of the pair's summed Schwarzschild radii 2 G (m_i + m_j) / c^2.
-DEFAULT_MERGER_FACTOR = 8.0
+#: Default merger distance in summed Schwarzschild radii (declared in :mod:`loschmidt.options`).
+DEFAULT_MERGER_FACTOR = _o.DEFAULT_MERGER_FACTOR
 
-#: Default relative tolerance per precision, a few hundred units of round-off, so the truncation
-#: error of the extrapolation sits just above the precision's floor.
-DEFAULT_TOLERANCE = {"f64": 1e-13, "f64c": 1e-14, "dd": 1e-28, "qd": 1e-56}
+#: Default relative tolerance per precision (``loschmidt.precision.default_tolerance``, from the
+#: engine's scalar traits).
+DEFAULT_TOLERANCE = {p: _p.default_tolerance(p) for p in _p.PRECISIONS}
 
 
 @dataclass(frozen=True)
@@ -213,7 +215,7 @@ class Result:
         dict
             Format ``"loschmidt.result"``; ``from_dict`` reads it back bit for bit.
         """
-        from . import __version__
+        from ._version import __version__
         from .serialize import FORMAT_VERSION, limbs_to_json
 
         out = {"format": "loschmidt.result", "format_version": FORMAT_VERSION, "loschmidt": __version__}
@@ -350,75 +352,11 @@ def _time_limbs(t: Any, prec: str, name: str) -> np.ndarray:
     return limbs
 
 
-#: Largest integer option the engine takes (a C++ long long); ``max_order`` is an int.
-_INT64_MAX = 2**63 - 1
-_INT32_MAX = 2**31 - 1
-
-
-def _positive_or_none(value: Any, name: str, integer: bool = False, maximum: int = _INT64_MAX) -> Any:
-    if value is None:
-        return None
-    _check_number(value, name)
-    if integer:
-        if not isinstance(value, numbers.Integral):
-            raise TypeError(f"{name}: expected an integer, got {type(value).__name__}")
-        if value <= 0:
-            raise ValueError(f"{name}: must be positive, got {value}")
-        if value > maximum:
-            raise ValueError(f"{name}: must be at most {maximum}, got {value}")
-        return int(value)
-    if not isinstance(value, numbers.Real):
-        raise TypeError(f"{name}: expected a number, got {type(value).__name__}")
-    v = _p._real(value)
-    if not math.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}: must be a positive finite number, got {value}")
-    return v
-
-
-def check_tolerance(tol: Any, prec: str, name: str = "tol") -> float:
-    """Validate a relative tolerance.
-
-    Parameters
-    ----------
-    tol : float or None
-        The tolerance; None gives the precision's default (``DEFAULT_TOLERANCE``).
-    prec : str
-        The working precision.
-    name : str, optional
-        The argument name used in error messages.
-
-    Returns
-    -------
-    float
-
-    Raises
-    ------
-    ValueError
-        Outside (0, 1), or below about 50 units of round-off of ``prec``.
-    """
-    if tol is None:
-        return DEFAULT_TOLERANCE[prec]
-    _check_number(tol, name)
-    if not isinstance(tol, numbers.Real):
-        raise TypeError(f"{name}: expected a number, got {type(tol).__name__}")
-    v = _p._real(tol)
-    if not (0 < v < 1) or not math.isfinite(v):
-        raise ValueError(f"{name}: must lie in (0, 1), got {tol}")
-    floor = 50 * _p.epsilon(prec)  # below this the error estimate is round-off noise
-    if v < floor:
-        raise ValueError(
-            f"{name}: {v:g} is below what precision {prec!r} can resolve (about {floor:.1e}); "
-            "use a higher precision"
-        )
-    return v
-
-
-def _check_method(method: Any) -> str:
-    if not isinstance(method, str):
-        raise TypeError(f"method: expected one of {METHODS}, got {type(method).__name__}")
-    if method not in METHODS:
-        raise ValueError(f"method: unknown method {method!r}; expected one of {METHODS}")
-    return method
+# The checks of the options live in loschmidt.options; these names stay for the modules that used them.
+check_tolerance = _o.check_tolerance
+_check_method = _o.check_method
+resolve_method = _o.resolve_method
+CHAIN_MAX_BODIES = _o.CHAIN_MAX_BODIES
 
 
 def _output_times(times: Any, t: np.ndarray, prec: str) -> np.ndarray:
@@ -445,201 +383,35 @@ def _output_times(times: Any, t: np.ndarray, prec: str) -> np.ndarray:
     return np.ascontiguousarray(limbs)
 
 
-def _check_pn(pn: Any, c: Any, merger_factor: Any, method: str, prec: str) -> tuple[int, list, float]:
-    """Validate the post-Newtonian arguments: (order mask, limbs of c, merger factor)."""
-    if pn is None or (isinstance(pn, (tuple, list, set, frozenset)) and len(pn) == 0):
-        if c is not None:
-            raise ValueError("c: the speed of light is only used with pn")
-        if merger_factor is not None:
-            raise ValueError("merger_factor: only used with pn")
-        return 0, [], DEFAULT_MERGER_FACTOR
-    if isinstance(pn, np.ndarray):
-        pn = pn.tolist() if pn.ndim == 1 else pn
-    orders = pn if isinstance(pn, (tuple, list, set, frozenset)) else (pn,)
-    mask = 0
-    for order in orders:
-        if isinstance(order, (bool, np.bool_)) or not isinstance(order, numbers.Real):
-            raise TypeError(f"pn: expected post-Newtonian orders among {tuple(PN_ORDERS)}, got {order!r}")
-        if order not in PN_ORDERS:
-            raise ValueError(
-                f"pn: unknown post-Newtonian order {order!r}; expected a subset of {tuple(PN_ORDERS)}"
-            )
-        mask |= PN_ORDERS[order]
-    if method != "chain":
-        raise ValueError(f"pn: post-Newtonian terms need method='chain', got method={method!r}")
-    if c is None:
-        raise ValueError("c: the speed of light in N-body units (loschmidt.units.Scale(...).c) is required with pn")
-    _check_number(c, "c")
-    c_limbs = _p.to_limbs(c, prec, name="c")
-    if c_limbs.ndim != 1:
-        raise ValueError("c: expected a single number")
-    c_value = float(_p.to_float(c_limbs))
-    if not math.isfinite(c_value) or not c_value > 0:
-        raise ValueError(f"c: must be a positive finite number, got {c}")
-    if merger_factor is None:
-        factor = DEFAULT_MERGER_FACTOR
-    else:
-        _check_number(merger_factor, "merger_factor")
-        if not isinstance(merger_factor, numbers.Real):
-            raise TypeError(f"merger_factor: expected a number, got {type(merger_factor).__name__}")
-        factor = _p._real(merger_factor)
-        if not math.isfinite(factor) or factor < 0:
-            raise ValueError(f"merger_factor: must be a finite number >= 0, got {merger_factor}")
-    return mask, [float(x) for x in c_limbs], factor
-
-
-def _check_fixed_budget(fixed_step: Any, t_limbs: np.ndarray, max_steps: Any, steps: int) -> None:
-    """With ``fixed_step`` and no explicit ``max_steps``, refuse a span that needs more steps than the
-    default budget: the run could only end with status max_steps, after hours."""
-    if fixed_step is None or max_steps is not None:
-        return
-    h = _positive_or_none(fixed_step, "fixed_step")
-    needed = abs(float(_p.to_float(t_limbs))) / h
-    if needed > steps:
-        raise ValueError(
-            f"fixed_step: |t| / fixed_step = {needed:.3g} steps exceed the default budget of {steps} steps; "
-            "use a larger fixed_step, or pass max_steps to run part of the way"
-        )
-
-
-def _check_stop(stop: Any, check_every: Any, distance_factor: Any, fixed_step: Any, initial_step: Any,
-                method: str) -> dict:
-    """Validate the stop condition and fixed-step arguments: the engine's keyword arguments."""
-    from .outcome import DEFAULT_DISTANCE_FACTOR, _check_factor
-
-    if stop not in (None, "escape", "pair_distance"):
-        raise ValueError(f"stop: expected None, 'escape' or 'pair_distance', got {stop!r}")
-    every = _positive_or_none(check_every, "check_every", integer=True)
-    if every is None or every > 2**31 - 1:
-        raise ValueError(f"check_every: expected a positive integer, got {check_every!r}")
-    factor = DEFAULT_DISTANCE_FACTOR if distance_factor is None else _check_factor(distance_factor)
-    h = 0.0 if fixed_step is None else _positive_or_none(fixed_step, "fixed_step")
-    if fixed_step is not None and method != "gbs":
-        raise ValueError(f"fixed_step: needs method='gbs', got method={method!r}")
-    if fixed_step is not None and initial_step is not None:
-        raise ValueError("initial_step: not used with fixed_step (every step has the fixed size)")
-    return {"stop": {None: 0, "escape": 1, "pair_distance": 2}[stop], "check_every": every, "distance_factor": factor,
-            "fixed_step": h}
-
-
-def _check_events(events: Any, max_events: Any, stop: Any, stop_distance: Any, stop_pair: Any, n: int) -> dict:
-    """Validate the event-log arguments (loschmidt.events): the engine's keyword arguments."""
-    if not isinstance(events, (bool, np.bool_)):
-        raise TypeError(f"events: expected True or False, got {type(events).__name__}")
-    cap = _positive_or_none(max_events, "max_events", integer=True)
-    out = {"events": bool(events), "max_events": 1000000 if cap is None else cap}
-    if stop != "pair_distance":
-        if stop_distance is not None or stop_pair is not None:
-            raise ValueError("stop_distance, stop_pair: only with stop='pair_distance'")
-        return out
-    d = _positive_or_none(stop_distance, "stop_distance")
-    if d is None:
-        raise ValueError("stop_distance: required with stop='pair_distance' (a positive distance)")
-    out["stop_distance"] = d
-    if stop_pair is not None:
-        try:
-            i, j = (int(x) for x in stop_pair)
-        except (TypeError, ValueError):
-            raise TypeError("stop_pair: expected a pair of body indices, or None for any pair") from None
-        if not (0 <= i < n and 0 <= j < n and i != j):
-            raise ValueError(f"stop_pair: expected two different body indices below {n}, got {stop_pair!r}")
-        out["stop_pair_i"], out["stop_pair_j"] = i, j
-    return out
-
-
 def integrate(
     system: System,
     t: Any,
-    method: str = "gbs",
-    tol: float | None = None,
-    atol: float | None = None,
+    method: str | None = None,
+    *,
     times: Sequence[Any] | None = None,
-    max_steps: int | None = None,
-    max_wall_time: float | None = None,
-    max_order: int | None = None,
-    initial_step: float | None = None,
-    regularization: str = "logarithmic",
-    pn: Sequence[float] | None = None,
-    c: Any = None,
-    merger_factor: float | None = None,
-    stop: str | None = None,
-    check_every: int = 10,
-    distance_factor: float | None = None,
-    fixed_step: float | None = None,
     merge: bool = False,
-    events: bool = False,
-    max_events: int | None = None,
-    stop_distance: float | None = None,
-    stop_pair: Sequence[int] | None = None,
+    **options: Any,
 ) -> Result:
     """Integrate ``system`` over a time span ``t`` (negative: backward) in its working precision.
 
     Parameters
     ----------
     system : System
-        The start; its precision is the working precision.
+        The start; its precision is the working precision. Its radii (``System.radii``) need
+        method ``"chain"``.
     t : number or decimal string
         Span of the integration, converted exactly to the working precision.
-    method : {"gbs", "chain"}
+    method : {None, "gbs", "chain"}, optional
+        Default None: chosen by ``resolve_method`` (``"chain"`` for at most ``CHAIN_MAX_BODIES``
+        bodies, ``"gbs"`` above that; an option or radii only one method takes choose it).
         ``"gbs"``: Gragg-Bulirsch-Stoer extrapolation with order and step control, in the bodies'
         coordinates. ``"chain"``: the same extrapolation over a regularized leapfrog in chain
         coordinates (Mikkola & Aarseth 1993; Mikkola & Tanikawa 1999): close encounters and
         collision orbits cost little, and body radii (``System.radii``) end the run with status
         ``collision`` when two bodies touch.
-    tol : float, optional
-        Relative tolerance of the local error; default per precision (``DEFAULT_TOLERANCE``).
-    atol : float, optional
-        Absolute tolerance (defaults to ``tol``).
     times : sequence of numbers, optional
         Offsets from the start, strictly monotonic in the direction of ``t``, within ``(0, t]``:
         the engine lands exactly on each (no interpolation) and ``Result.trajectory`` holds them.
-    max_steps : int, optional
-        Budget of macro steps (status ``max_steps`` when spent). Default: no limit beyond 10**9.
-    max_wall_time : float, optional
-        Budget of seconds (status ``max_wall_time``).
-    max_order : int, optional
-        Highest extrapolation column; default grows with the precision.
-    initial_step : float, optional
-        First step size; default chosen automatically.
-    regularization : {"logarithmic", "time_transformed"}
-        Time transformation of the chain method's leapfrog (Mikkola & Tanikawa 1999; Mikkola &
-        Aarseth 2002). Ignored by ``gbs``.
-    pn : tuple of {1, 2, 2.5}, optional
-        Post-Newtonian terms for compact bodies (chain method only), harmonic coordinates: 1 the
-        full Einstein-Infeld-Hoffmann N-body 1PN equations; 2 and 2.5 (radiation reaction) the
-        two-body relative accelerations (Blanchet 2014, Living Rev. Relativ. 17, 2) applied pair by
-        pair and split by mass ratio, so each pair term conserves momentum; the three-body terms
-        at those orders are left out (common practice in few-body work; Kupi, Amaro-Seoane &
-        Spurzem 2006, MNRAS 371, L45). With 1PN on, the 2PN pair term leaves out the part that the
-        EIH terms already produce (cpp/include/loschmidt/nbody/post_newtonian.hpp), so a binary
-        follows the two-body 2PN motion in its centre-of-mass frame. The PN forces depend on the
-        velocities in the frame given (harmonic coordinates; not Galilean invariant). Default:
-        Newtonian, bit for bit as without these arguments. 2.5PN (radiation reaction) makes the
-        motion irreversible: a round trip does not come back.
-    c : number or decimal string
-        The speed of light in N-body units (``loschmidt.units.Scale(...).c``, or the decimal string
-        ``Scale(...).decimal("c")`` for extended precision); required with ``pn``.
-    merger_factor : float, optional
-        With ``pn``, a pair closer than ``merger_factor`` times the sum of its Schwarzschild radii,
-        ``merger_factor * 2 G (m_i + m_j) / c^2``, ends the run with status ``merger`` and the pair
-        in ``Result.collision``. Default 8 (16 G M / c^2: v/c ~ 0.25 on a circular orbit, where the
-        PN expansion is about to fail); 0 switches the test off. The bodies are not merged.
-    stop : {None, "escape", "pair_distance"}, optional
-        ``"escape"`` (both methods): every ``check_every`` accepted steps the engine tests, in double
-        precision, whether a body escapes, and stops with status ``stop_condition`` when one does;
-        ``t`` is then the longest span and ``Result.lifetime`` the time it stopped. The test is
-        that of :mod:`loschmidt.outcome` for two and three bodies (three: the body outside the
-        most bound pair has positive energy relative to the pair's centre of mass, recedes, and
-        is farther than ``distance_factor`` semimajor axes of the pair); for N > 3 a body unbound
-        from the centre of mass of all the others, receding, and farther than
-        ``distance_factor`` times their size (the largest distance or semimajor axis of one of
-        them about the centre of mass of the rest; cpp/include/loschmidt/nbody/escape.hpp). It
-        is a trigger: classify the final state with ``loschmidt.outcome``.
-    check_every : int, optional
-        Accepted steps between escape tests (default 10).
-    distance_factor : float, optional
-        k of the escape test (default ``loschmidt.outcome.DEFAULT_DISTANCE_FACTOR``); 0 drops the
-        distance condition.
     merge : bool, optional
         With ``pn``: instead of ending the run at a merger, replace the pair by one body
         (``merged``: masses added, momentum and centre of mass conserved) and go on to ``t``, as
@@ -647,22 +419,9 @@ def integrate(
         bodies at that moment (the merged body takes index ``min(i, j)``), and ``Result.system``
         has fewer bodies; counters add up over the pieces and ``energy_error`` is that of the
         last piece. Not with ``times``.
-    fixed_step : float, optional
-        Fixed-step mode (gbs only), for measuring the order of the method: every step has this
-        size (the last before each output time and ``t`` is shortened to land), with exactly
-        ``max_order`` rows of extrapolation (any number >= 1 here; order 2 * max_order) and no
-        error control or rejection (``tol`` is not used); ``initial_step`` is not accepted with it.
-    events : bool, optional
-        Record the event log (both methods; :mod:`loschmidt.events`): pericentre passages and the
-        closest approach of every pair, in ``Result.events``, without output times.
-    max_events : int, optional
-        Most passages kept in the log (default 1,000,000; the rest are counted).
-    stop_distance : float, optional
-        With ``stop="pair_distance"`` (both methods): end the run at the end of the first step in
-        which ``stop_pair`` (any pair when None) came closer than this; the pair is in
-        ``Result.stop_pair``. Implies an event log.
-    stop_pair : (int, int), optional
-        The pair watched by ``stop_distance`` (default: every pair).
+    **options
+        The integration options (:mod:`loschmidt.options`), below.
+    <options>
 
     Returns
     -------
@@ -685,46 +444,30 @@ def integrate(
     if not isinstance(system, System):
         raise TypeError(f"system: expected a loschmidt.System, got {type(system).__name__}")
     prec = system.precision
-    method = _check_method(method)
+    method = _o.resolve_method(method, system.n, options, carries_radii=system.radii is not None)
     t_limbs = _time_limbs(t, prec, "t")
-    rtol = check_tolerance(tol, prec, "tol")
-    a_tol = rtol if atol is None else _positive_or_none(atol, "atol")
+    settings = _o.resolve(options, method=method, precision=prec, entry="integrate", t_limbs=t_limbs,
+                          bodies=system.n)
+    radii = _o.system_radii(system.radii, method)
     outs = _output_times(times, t_limbs, prec)
-    steps = _positive_or_none(max_steps, "max_steps", integer=True) or 10**9
-    wall = _positive_or_none(max_wall_time, "max_wall_time") or math.inf
-    order = 0 if max_order is None else _positive_or_none(max_order, "max_order", integer=True, maximum=_INT32_MAX)
-    if order and order < 3 and fixed_step is None:
-        raise ValueError(f"max_order: must be at least 3, got {max_order}")
-    h0 = 0.0 if initial_step is None else _positive_or_none(initial_step, "initial_step")
-    _check_fixed_budget(fixed_step, t_limbs, max_steps, steps)
-    if regularization not in REGULARIZATIONS:
-        raise ValueError(f"regularization: expected one of {REGULARIZATIONS}, got {regularization!r}")
-    radii = [] if (system.radii is None or method != "chain") else [float(r) for r in system.radii]
-    pn_mask, c_limbs, factor = _check_pn(pn, c, merger_factor, method, prec)
-
     if not isinstance(merge, (bool, np.bool_)):
         raise TypeError(f"merge: expected True or False, got {type(merge).__name__}")
-    if merge and not pn_mask:
+    if merge and not settings.pn_mask:
         raise ValueError("merge: merging is for post-Newtonian mergers; pass pn and c with it")
     if merge and outs.shape[0]:
         raise ValueError("times: not available with merge=True (the number of bodies changes at a merger)")
 
-    ev = _check_events(events, max_events, stop, stop_distance, stop_pair, system.n)
-    if ev["events"] and merge:
+    if merge and settings["events"]:
         raise ValueError("events: not available with merge=True (the bodies change at a merger)")
-    kernel = getattr(_core, f"integrate_{prec}")
-    raw = kernel(
-        method, system.limbs("masses"), system.limbs("positions"), system.limbs("velocities"),
-        t_limbs, outs, rtol, a_tol, steps, wall, order, h0, radii, REGULARIZATIONS.index(regularization),
-        pn_mask, c_limbs, factor, **_check_stop(stop, check_every, distance_factor, fixed_step, initial_step, method),
-        **ev,
-    )
-    result = _wrap(system, raw, method, prec, rtol, bool(outs.shape[0]))
+    raw = _engine.integrate(method, system.limbs("masses"), system.limbs("positions"), system.limbs("velocities"),
+                            t_limbs, outs, settings, radii)
+    result = _wrap(system, raw, method, prec, settings["tol"], bool(outs.shape[0]))
     if not merge or result.status != "merger":
         return result
-    return _after_mergers(system, t_limbs, result, dict(
-        method=method, tol=tol, atol=atol, max_steps=max_steps, max_wall_time=max_wall_time, max_order=max_order,
-        regularization=regularization, pn=pn, c=c, merger_factor=merger_factor))
+    return _after_mergers(system, t_limbs, result, dict(options, method=method))
+
+
+integrate.__doc__ = _o.document(integrate.__doc__, "integrate")
 
 
 def merged(system: System, i: int, j: int) -> System:
@@ -820,53 +563,50 @@ def _after_mergers(start: System, t_limbs: np.ndarray, result: Result, options: 
                                rechains=rechains, mergers=tuple(events))
 
 
-def _wrap(system: System, raw: dict, method: str, prec: str, rtol: float, want_trajectory: bool) -> Result:
+def _wrap(system: System, raw: Any, method: str, prec: str, rtol: float, want_trajectory: bool) -> Result:
     t0 = system.limbs("time")
-    t_abs = _p.add(t0, raw["t"], prec) if np.any(t0) else raw["t"]
+    t_abs = _p.add(t0, raw.t, prec) if np.any(t0) else raw.t
     # As the engine returned it: a failed run (status nonfinite) may hold infinities or NaN.
     final = System._unchecked(
-        system.limbs("masses"), np.ascontiguousarray(raw["positions"]), np.ascontiguousarray(raw["velocities"]),
+        system.limbs("masses"), np.ascontiguousarray(raw.positions), np.ascontiguousarray(raw.velocities),
         prec, system.radii, np.ascontiguousarray(t_abs),
     )
     traj = None
     if want_trajectory:
-        tt = raw["trajectory_t"]
+        tt = raw.trajectory_t
         if np.any(t0) and tt.shape[0]:
             tt = _p.add(np.broadcast_to(t0, tt.shape), tt, prec)
-        traj = Trajectory(prec, tt, raw["trajectory_positions"], raw["trajectory_velocities"], system)
-    code = int(raw["status"])
+        traj = Trajectory(prec, tt, raw.trajectory_positions, raw.trajectory_velocities, system)
+    code = int(raw.stats.status)
     return Result(
         system=final,
         t=float(_p.to_float(t_abs)),
         status=status_name(code),
         message=status_message(code),
-        steps=int(raw["steps"]),
-        rejected=int(raw["rejected"]),
-        evaluations=int(raw["evaluations"]),
-        wall_time=float(raw["wall_time"]),
-        energy_error=float(raw["energy_error"]),
+        steps=int(raw.stats.steps),
+        rejected=int(raw.stats.rejected),
+        evaluations=int(raw.stats.evaluations),
+        wall_time=float(raw.stats.wall_time),
+        energy_error=float(raw.energy_error),
         method=method,
         precision=prec,
         tol=rtol,
         trajectory=traj,
-        collision=tuple(int(i) for i in raw["collision_pair"]) if raw["collision_pair"][0] >= 0 else None,
-        rechains=int(raw["rechains"]),
-        lifetime=float(_p.to_float(raw["t"])) if status_name(code) == "stop_condition" else None,
+        collision=(int(raw.collision_i), int(raw.collision_j)) if raw.collision_i >= 0 else None,
+        rechains=int(raw.rechains),
+        lifetime=float(_p.to_float(raw.t)) if status_name(code) == "stop_condition" else None,
         events=_events(raw, system.time),
-        stop_pair=tuple(int(i) for i in raw["stop_pair"]) if int(raw.get("stopped_by", 0)) == 2 else None,
+        stop_pair=(int(raw.stats.stop_i), int(raw.stats.stop_j)) if raw.stats.stopped_by == _o.STOP_CODES["pair_distance"]
+        else None,
     )
 
 
-def _events(raw: dict, t0: float) -> Any:
-    if "events" not in raw:
+def _events(raw: Any, t0: float) -> Any:
+    if raw.events is None:
         return None
     from .events import EventLog
 
-    log = EventLog._from_raw(raw["events"])
-    if t0:  # the engine counts from the start
-        for part in (log.passages, log.outer, log.closest):
-            part["t"] = part["t"] + t0
-    return log
+    return EventLog._from_record(raw.events, t0)
 
 
 def _common(a: System, b: System) -> tuple[System, System, str]:
@@ -874,8 +614,8 @@ def _common(a: System, b: System) -> tuple[System, System, str]:
         raise TypeError("a, b: expected two loschmidt.System objects")
     if a.n != b.n:
         raise ValueError(f"a, b: different numbers of bodies ({a.n} and {b.n})")
-    order = {"f64": 0, "f64c": 0, "dd": 1, "qd": 2}
-    prec = a.precision if order[a.precision] >= order[b.precision] else b.precision
+    finer = _p.info(b.precision).unit_roundoff < _p.info(a.precision).unit_roundoff
+    prec = b.precision if finer else a.precision
     return a.with_precision(prec), b.with_precision(prec), prec
 
 

@@ -37,6 +37,8 @@ from typing import Any, Iterable, Sequence
 import mpmath
 import numpy as np
 
+from . import precision as _precision
+
 __all__ = [
     "OrbitalElements",
     "orbital_elements",
@@ -46,7 +48,7 @@ __all__ = [
     "working_bits",
 ]
 
-_BITS = {"f64": 53, "f64c": 53, "dd": 106, "qd": 212}
+_BITS = {name: p.bits for name, p in _precision.TABLE.items()}  # from the engine's table
 GUARD_BITS = 64
 
 

@@ -67,6 +67,7 @@ from typing import Any
 import mpmath
 import numpy as np
 
+from . import options as _options
 from . import precision as _p
 from .orbits import GUARD_BITS, OrbitalElements, _elements_mp, working_bits
 from .system import System
@@ -83,8 +84,8 @@ __all__ = [
 #: The kinds of outcome, in the order they are decided (see the module docstring).
 OUTCOME_KINDS = ("collision", "escape", "bound", "undecided")
 
-#: k in the escape test R > k a_binary (common practice; 10 is a usual choice).
-DEFAULT_DISTANCE_FACTOR = 10.0
+#: k in the escape test R > k a_binary (declared with the option in loschmidt.options).
+DEFAULT_DISTANCE_FACTOR = _options.DEFAULT_DISTANCE_FACTOR
 
 _NAN = float("nan")
 
@@ -212,6 +213,14 @@ class Outcome:
     reason: str
     binary_elements: OrbitalElements | None = field(default=None, compare=False)
     _exact: dict = field(default_factory=dict, compare=False, hash=False)
+
+    @property
+    def hierarchical(self) -> bool:
+        """Three bodies with a bound binary and the third farther from its centre of mass than
+        ``distance_factor`` binary semimajor axes: only then is ``binary`` a binary set apart from the
+        third body (the figure-eight or the Lagrange triangle have none)."""
+        a = self.semimajor_axis
+        return bool(self.n == 3 and self.binary_bound and a > 0 and self.distance > max(self.distance_factor, 1) * a)
 
     @property
     def structure(self) -> str:
@@ -430,12 +439,7 @@ def _escape_test(p, parts, masses, pos, vel, k):
 # validation
 # ---------------------------------------------------------------------------------------------
 def _check_factor(value: Any) -> float:
-    if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
-        raise TypeError(f"distance_factor: expected a real number, got {type(value).__name__}")
-    v = _p._real(value)
-    if not math.isfinite(v) or v < 0:
-        raise ValueError(f"distance_factor: must be a finite number >= 0, got {value!r}")
-    return v
+    return _options.check_distance_factor(value)
 
 
 def _check_radii(radii: Any, system: System) -> np.ndarray | None:
@@ -580,7 +584,7 @@ def outcome(system: System, distance_factor: float = DEFAULT_DISTANCE_FACTOR, ra
             outer_energy, distance, rdot, mu, _dr, _dv = _two_body(M, R, V, mp_, rp, vp)
             if outer_energy > 0:
                 v_inf = mpmath.sqrt(2 * outer_energy / mu)
-            if n == 3:
+            if n == 3 and distance != 0:  # R = 0 (the figure-eight's start): no tidal split
                 i, j = binary
                 tidal = masses[third] * (masses[i] + masses[j]) / distance - mpmath.fsum(
                     masses[third] * masses[b] / mpmath.sqrt(_dot(_sub(pos[third], pos[b]), _sub(pos[third], pos[b])))
@@ -591,7 +595,7 @@ def outcome(system: System, distance_factor: float = DEFAULT_DISTANCE_FACTOR, ra
         if collision is not None:
             kind, reason = "collision", f"bodies {collision[0]} and {collision[1]} overlap"
         elif len(parts) == 1:
-            kind, reason = "bound", "one hierarchically bound subsystem"
+            kind, reason = "bound", _bound_reason(n, binary, third, binary_el, distance, k_factor)
         elif escapers:
             kind, reason = "escape", "positive energy, receding, far"
         else:
@@ -645,6 +649,32 @@ def outcome(system: System, distance_factor: float = DEFAULT_DISTANCE_FACTOR, ra
             binary_elements=OrbitalElements(binary_el, prec) if binary_el is not None else None,
             _exact=exact,
         )
+
+
+def _is_hierarchical(n: int, binary_el: dict | None, distance: Any, k_factor: float) -> bool:
+    """A bound triple is hierarchical when the third body is farther from the binary's centre of mass
+    than ``k_factor`` binary semimajor axes (the same distance as condition 3 of the escape test;
+    common practice). Two bodies are one pair, not a hierarchy."""
+    if n != 3 or binary_el is None or not binary_el["energy"] < 0:
+        return False
+    a = binary_el["semimajor_axis"]
+    return bool(distance == distance and a > 0 and distance > max(k_factor, 1) * a)
+
+
+def _bound_reason(n: int, binary: Any, third: Any, binary_el: dict | None, distance: Any, k_factor: float) -> str:
+    """Why a state is one bound subsystem, in words that fit its shape."""
+    if n == 1:
+        return "a single body"
+    if n == 2:
+        return "a bound pair (a two-body orbit)"
+    if n == 3 and binary is not None:
+        i, j = binary
+        if _is_hierarchical(n, binary_el, distance, k_factor):
+            return (f"a hierarchical triple: bodies {i} and {j} form a binary and body {third} orbits it at "
+                    f"more than {max(k_factor, 1):g} binary semimajor axes")
+        return (f"a bound, non-hierarchical triple: no pair is set apart from the third body (body {third} "
+                f"is within {max(k_factor, 1):g} semimajor axes of the closest pair)")
+    return "one bound subsystem of all the bodies"
 
 
 def _f(el: dict | None, name: str) -> float:

@@ -7,7 +7,8 @@ names to arrays; several labelled tables (``{"f64": df1, "dd": df2}``) give pane
 one colour scale, or overlaid histograms.
 
 - :func:`reversibility_map`: log10 of the round-trip distance delta over the free-fall region
-  (body 3's starting point ``x``, ``y``; grid cells when ``ix``, ``iy`` are present, dots otherwise).
+  (body 2's starting point ``x``, ``y``; bodies are counted from 0, as in the API; grid cells
+  when ``ix``, ``iy`` are present, dots otherwise).
 - :func:`lifetime_map`: the same region coloured by the time to the first escape.
 - :func:`delta_histogram`, :func:`lifetime_histogram`: their distributions.
 - :func:`amplification_plot`: growth of a small perturbation against time.
@@ -42,8 +43,11 @@ __all__ = [
     "DEFAULT_THRESHOLD",
 ]
 
-#: Round-trip distance at or below which a member counts as reversible (N-body units).
-DEFAULT_THRESHOLD = 1e-10
+from .chaos import REVERSIBLE_THRESHOLD  # noqa: E402
+
+#: Round-trip distance at or below which a member counts as reversible (N-body units); the one
+#: threshold of the package (``loschmidt.chaos.REVERSIBLE_THRESHOLD``).
+DEFAULT_THRESHOLD = REVERSIBLE_THRESHOLD
 
 _SQRT3_2 = math.sqrt(3.0) / 2.0
 _NOT_FINISHED = "#b0b0b0"  # members whose run did not finish
@@ -257,14 +261,14 @@ def _region_outline(ax: Any, u: AxisUnits) -> None:
     ax.plot([0, 0], [0, f * _SQRT3_2], color="black", lw=1.0)
     ax.plot([0, 0.5 * f], [0, 0], color="black", lw=1.0)
     ax.plot([0.5 * f], [0], marker="o", ms=6, color="black", clip_on=False, zorder=5)
-    # label body 2 from the empty corner outside the arc, so no cell is hidden
-    ax.annotate("body 2", (0.5 * f, 0), xytext=(0.47 * f, 0.42 * f), textcoords="data", ha="center", fontsize=8,
+    # label body 1 from the empty corner outside the arc, so no cell is hidden
+    ax.annotate("body 1", (0.5 * f, 0), xytext=(0.47 * f, 0.42 * f), textcoords="data", ha="center", fontsize=8,
                 arrowprops={"arrowstyle": "-", "color": "0.3", "lw": 0.6, "shrinkB": 4})
     ax.set_xlim(-0.02 * f, 0.52 * f)
     ax.set_ylim(-0.02 * f, 0.89 * f)
     ax.set_aspect("equal")
-    ax.set_xlabel(u.length("x of body 3 at release"))
-    ax.set_ylabel(u.length("y of body 3 at release"))
+    ax.set_xlabel(u.length("x of body 2 at release"))
+    ax.set_ylabel(u.length("y of body 2 at release"))
 
 
 def _paint(ax: Any, table: Any, values: np.ndarray, shown: np.ndarray, cmap: Any, norm: Any,
@@ -302,11 +306,63 @@ def _paint(ax: Any, table: Any, values: np.ndarray, shown: np.ndarray, cmap: Any
 
 
 def _legend_patches(ax: Any, entries: Sequence[tuple[str, str]]) -> None:
+    """A legend of flat colours; a colour ``"outline:C"`` is an empty box edged in C."""
     from matplotlib.patches import Patch
 
-    handles = [Patch(facecolor=c, edgecolor="0.4", label=label) for label, c in entries]
+    handles = [Patch(facecolor="none", edgecolor=c.split(":", 1)[1], lw=1.5, label=label) if c.startswith("outline:")
+               else Patch(facecolor=c, edgecolor="0.4", label=label) for label, c in entries]
     if handles:
         ax.legend(handles=handles, loc="upper right", fontsize=8, framealpha=0.9)
+
+
+def _outline(ax: Any, table: Any, mask: np.ndarray, colour: str, u: AxisUnits) -> None:
+    """Edge the cells (or dots) of ``mask`` in ``colour``: members singled out without hiding their value."""
+    if not np.any(mask):
+        return
+    f = u.length_factor
+    grid = _grid(table)
+    x, y = _col(table, "x"), _col(table, "y")
+    if grid is not None:
+        from matplotlib.collections import PatchCollection
+        from matplotlib.patches import Rectangle
+
+        nx, ny = grid
+        ix, iy = _col(table, "ix", np.int64), _col(table, "iy", np.int64)
+        w, h = 0.5 * f / nx, _SQRT3_2 * f / ny
+        boxes = [Rectangle((i * w, j * h), w, h) for i, j in zip(ix[mask], iy[mask])]
+        ax.add_collection(PatchCollection(boxes, facecolor="none", edgecolor=colour, linewidth=1.2, zorder=4))
+    else:
+        size = max(4.0, min(40.0, 6000.0 / max(len(x), 1)))
+        ax.scatter(f * x[mask], f * y[mask], s=size * 2.5, facecolors="none", edgecolors=colour, linewidths=1.0,
+                   zorder=4)
+
+
+_IRREVERSIBLE = "outline:red"
+
+
+def _axes_title(ax: Any, text: str, fontsize: float = 11) -> None:
+    """An axes title wrapped to the figure's width (a long title is never clipped)."""
+    import textwrap
+
+    width_pt = ax.figure.get_figwidth() * 72.0 * 0.9
+    chars = max(20, int(width_pt / (0.55 * fontsize)))
+    ax.set_title("\n".join(textwrap.wrap(text, chars)) or text, fontsize=fontsize)
+
+
+def _ending_counts(ended: np.ndarray, kinds: np.ndarray | None) -> dict:
+    """How the members' lifetimes ended: {"escaped": k, "merged": k, "collided": k, ...}; an escape
+    count always, the others when non-zero (a merger is never called an escape)."""
+    if kinds is None:
+        return {"escaped": int(np.count_nonzero(ended))}
+    out = {}
+    for word, kind in (("escaped", "escape"), ("merged", "merger"), ("collided", "collision")):
+        k = int(np.count_nonzero(ended & (kinds == kind)))
+        if k or kind == "escape":
+            out[word] = k
+    other = int(np.count_nonzero(ended & ~np.isin(kinds, ["escape", "merger", "collision"])))
+    if other:
+        out["ended otherwise"] = other
+    return out
 
 
 def _figure(size: tuple[float, float] | None, default: tuple[float, float]):
@@ -315,7 +371,17 @@ def _figure(size: tuple[float, float] | None, default: tuple[float, float]):
 
 
 def _panel_width(panels: int) -> tuple[float, float]:
-    return (1.5 + 3.0 * panels, 5.2)
+    # 6 inches for one panel: at 4.5 the default title was clipped and the y label pushed out
+    return (max(6.0, 1.5 + 3.0 * panels), 5.2)
+
+
+def _suptitle(fig: Any, text: str, fontsize: float = 11) -> None:
+    """A figure title wrapped to the figure's width (a long title is never clipped)."""
+    import textwrap
+
+    width_pt = fig.get_figwidth() * 72.0
+    chars = max(20, int(width_pt / (0.55 * fontsize)))  # about 0.55 em per character in the default font
+    fig.suptitle("\n".join(textwrap.wrap(text, chars)) or text, fontsize=fontsize)
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -332,7 +398,7 @@ def reversibility_map(
 ):
     """Map of log10 delta (round-trip distance to the start) over the free-fall region.
 
-    ``data``: a table with columns ``x``, ``y`` (body 3's start) and ``delta`` (and ``status``,
+    ``data``: a table with columns ``x``, ``y`` (body 2's start) and ``delta`` (and ``status``,
     ``ix``, ``iy`` when present), or a mapping label -> table for panels on one colour scale.
     Members at or below ``threshold`` are the reversible ones (marked on the colour bar); members
     whose run did not finish are grey.
@@ -387,12 +453,17 @@ def reversibility_map(
     fig = _figure(size, _panel_width(len(frames)))
     axes = fig.subplots(1, len(frames), squeeze=False)[0]
     mappable = None
-    any_failed = False
     for ax, (label, table), d, ok in zip(axes, frames, logs, oks):
         lg = _log10_delta(d, lo)
         failed = ~ok
-        any_failed |= bool(np.any(failed))
         mappable = _paint(ax, table, lg, ok, cmap, norm, u, [(failed, _NOT_FINISHED)])
+        irreversible = ok & ~(d <= threshold)
+        _outline(ax, table, irreversible, _IRREVERSIBLE.split(":", 1)[1], u)
+        # each panel explains its own marks
+        legend = [(f"irreversible (delta > {threshold:.0e})", _IRREVERSIBLE)] if np.any(irreversible) else []
+        if np.any(failed):
+            legend.append(("did not finish", _NOT_FINISHED))
+        _legend_patches(ax, legend)
         rev = np.count_nonzero(ok & (d <= threshold))
         sub = f"{rev} of {len(d)} reversible (delta <= {threshold:.0e})"
         ax.set_title(f"{label}\n{sub}" if label else sub, fontsize=10)
@@ -403,9 +474,7 @@ def reversibility_map(
     cb.ax.axhline(math.log10(threshold), color="red", lw=1.5)
     cb.ax.text(-0.15, math.log10(threshold), "threshold", color="red", fontsize=7, ha="right", va="center",
                transform=cb.ax.get_yaxis_transform())
-    if any_failed:
-        _legend_patches(axes[-1], [("did not finish", _NOT_FINISHED)])
-    fig.suptitle(title or "Reversibility of the free fall: forward, velocities reversed, back", fontsize=11)
+    _suptitle(fig, title or "Reversibility of the free fall: forward, velocities reversed, back")
     return fig
 
 
@@ -415,11 +484,14 @@ def _integer_ticks(axis: Any) -> None:
     axis.set_major_locator(MaxNLocator(integer=True))
 
 
-def _plain_log_ticks(axis: Any) -> None:
-    """Ticks at 1, 2, 5 times powers of ten, written as plain numbers (not 6 x 10^1)."""
+def _plain_log_ticks(axis: Any, lo: float | None = None, hi: float | None = None) -> None:
+    """Ticks at powers of ten (and at 2 and 5 times them when the range spans at most two decades),
+    written as plain numbers (not 6 x 10^1); 1, 2, 5 over more decades made labels like 1000 and
+    2000 run together."""
     from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
-    axis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
+    few = lo is not None and hi is not None and lo > 0 and math.log10(hi / lo) <= 2.0
+    axis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0) if few else (1.0,)))
     axis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
     axis.set_minor_formatter(NullFormatter())
 
@@ -478,36 +550,33 @@ def lifetime_map(
     fig = _figure(size, _panel_width(len(frames)))
     axes = fig.subplots(1, len(frames), squeeze=False)[0]
     mappable = None
-    legend = {}
     any_merger = False
     for ax, (label, table), v in zip(axes, frames, values):
         finished = _finished(table, np.where(np.isnan(v), 0.0, v))
-        escaped = finished & np.isfinite(v) & (v > 0)
-        censored = finished & ~escaped
+        ended = finished & np.isfinite(v) & (v > 0)
+        censored = finished & ~ended
         failed = ~finished
-        mappable = _paint(ax, table, v, escaped, cmap, norm, u,
+        mappable = _paint(ax, table, v, ended, cmap, norm, u,
                           [(censored, _CENSORED), (failed, _NOT_FINISHED)])
+        # each panel explains its own flat colours (a legend on one panel left the other's unexplained)
+        legend = []
         if np.any(censored):
-            legend["no escape yet"] = _CENSORED
+            legend.append(("still bound at the end", _CENSORED))
         if np.any(failed):
-            legend["did not finish"] = _NOT_FINISHED
-        med = np.median(v[escaped]) if np.any(escaped) else float("nan")
+            legend.append(("did not finish", _NOT_FINISHED))
+        _legend_patches(ax, legend)
+        med = np.median(v[ended]) if np.any(ended) else float("nan")
         kinds = _col(table, "outcome", object) if _has(table, "outcome") else None
-        merged = int(np.count_nonzero(escaped & (kinds == "merger"))) if kinds is not None else 0
-        if merged:
-            any_merger = True
-            sub = (f"{np.count_nonzero(escaped) - merged} escaped, {merged} merged of {len(v)}\n"
-                   f"median {med:.3g} {u.time_name}")
-        else:
-            sub = f"{np.count_nonzero(escaped)} of {len(v)} escaped, median {med:.3g} {u.time_name}"
+        counts = _ending_counts(ended, kinds)
+        any_merger |= "merged" in counts
+        sub = f"{', '.join(f'{k} {w}' for w, k in counts.items())} of {len(v)}\nmedian {med:.3g} {u.time_name}"
         ax.set_title(f"{label}\n{sub}" if label else sub, fontsize=10)
         if ax is not axes[0]:
             ax.set_ylabel("")
     cb = fig.colorbar(mappable, ax=list(axes), shrink=0.85)
-    _plain_log_ticks(cb.ax.yaxis)
+    _plain_log_ticks(cb.ax.yaxis, lo, hi)
     cb.set_label(u.time("time to the first escape or merger" if any_merger else "time to the first escape"))
-    _legend_patches(axes[-1], list(legend.items()))
-    fig.suptitle(title or "Lifetime of the free-fall triple", fontsize=11)
+    _suptitle(fig, title or "Lifetime of the free-fall triple")
     return fig
 
 
@@ -574,7 +643,7 @@ def delta_histogram(
     ax.set_xlabel("log10 delta: phase-space distance after the round trip (N-body units)")
     ax.set_ylabel("members")
     ax.legend(fontsize=8)
-    ax.set_title(title or "Round-trip distance to the start", fontsize=11)
+    _axes_title(ax, title or "Round-trip distance to the start")
     return fig
 
 
@@ -610,18 +679,23 @@ def lifetime_histogram(
     fig = _figure(size, (7.0, 4.6))
     ax = fig.subplots()
     series = []
+    any_merger = False
     for label, table in frames:
         v = _col(table, column) * u.time_factor
-        series.append((label, v))
-    pos = np.concatenate([v[np.isfinite(v) & (v > 0)] for _l, v in series] or [np.zeros(0)])
+        kinds = _col(table, "outcome", object) if _has(table, "outcome") else None
+        series.append((label, v, kinds))
+        any_merger |= kinds is not None and bool(np.any(kinds == "merger"))
+    pos = np.concatenate([v[np.isfinite(v) & (v > 0)] for _l, v, _k in series] or [np.zeros(0)])
     lo, hi = (pos.min(), pos.max()) if pos.size else (1.0, 10.0)
     if hi <= lo:
         hi = lo * 10
     bins = np.geomspace(lo / 1.2, hi * 1.2, 30)
     top = 1
-    for k, (label, v) in enumerate(series):
+    for k, (label, v, kinds) in enumerate(series):
         good = np.isfinite(v) & (v > 0)
-        text = f"{label + ': ' if label else ''}{np.count_nonzero(good)} escaped"
+        # the lifetime ends at an escape, a merger or a contact: each is counted under its own name
+        parts = [f"{k} {w}" for w, k in _ending_counts(good, kinds).items()]
+        text = f"{label + ': ' if label else ''}{', '.join(parts)}"
         if np.count_nonzero(~good):
             text += f", {np.count_nonzero(~good)} still bound at the end"
         counts, _edges, _patches = ax.hist(v[good], bins=bins, histtype="stepfilled", alpha=0.35, color=f"C{k}")
@@ -630,11 +704,11 @@ def lifetime_histogram(
     ax.set_ylim(0, 1.3 * top)
     _integer_ticks(ax.yaxis)
     ax.set_xscale("log")
-    _plain_log_ticks(ax.xaxis)
-    ax.set_xlabel(u.time("time to the first escape"))
+    _plain_log_ticks(ax.xaxis, lo / 1.2, hi * 1.2)
+    ax.set_xlabel(u.time("time to the first escape or merger" if any_merger else "time to the first escape"))
     ax.set_ylabel("members")
     ax.legend(fontsize=8)
-    ax.set_title(title or "Lifetimes of the free-fall triples", fontsize=11)
+    _axes_title(ax, title or "Lifetimes of the free-fall triples")
     return fig
 
 
@@ -681,7 +755,7 @@ def amplification_plot(
     if any(label for label, _c in items):
         ax.legend(fontsize=8)
     ax.grid(alpha=0.3)
-    ax.set_title(title or "Growth of a small perturbation", fontsize=11)
+    _axes_title(ax, title or "Growth of a small perturbation")
     return fig
 
 
@@ -721,7 +795,8 @@ def orbit_plot(
     size : (float, float), optional
         Figure size in inches.
     labels : sequence of N str, optional
-        Legend entries (default ``"body 1"`` ...).
+        Legend entries (default ``"body 0"``, ``"body 1"`` ...: bodies are counted from 0, as
+        everywhere in loschmidt).
 
     Returns
     -------
@@ -746,7 +821,7 @@ def orbit_plot(
     fig = _figure(size, (6.4, 6.0))
     ax = fig.subplots()
     for i in range(n):
-        name = labels[i] if labels is not None else f"body {i + 1}" + (
+        name = labels[i] if labels is not None else f"body {i}" + (
             f" (m = {masses[i]:g})" if masses is not None else "")
         ax.plot(p[:, i, 0], p[:, i, 1], color=f"C{i}", lw=0.9, label=name)
         ax.plot(p[0, i, 0], p[0, i, 1], "o", color=f"C{i}", ms=6)
@@ -756,7 +831,7 @@ def orbit_plot(
     ax.set_ylabel(u.length("y"))
     ax.grid(alpha=0.3)
     ax.legend(fontsize=8, loc="best")
-    ax.set_title(title or "Orbits (o start, x end)", fontsize=11)
+    _axes_title(ax, title or "Orbits (o start, x end)")
     return fig
 
 

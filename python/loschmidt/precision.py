@@ -18,13 +18,19 @@ from __future__ import annotations
 import decimal
 import math
 import numbers
+from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any
 
 import numpy as np
 
+from . import _core
+
 __all__ = [
     "PRECISIONS",
+    "TABLE",
+    "Precision",
+    "info",
     "limb_count",
     "check_precision",
     "epsilon",
@@ -37,6 +43,7 @@ __all__ = [
     "convert",
     "add",
     "sub",
+    "default_tolerance",
     "mul",
     "div",
     "sqrt",
@@ -44,18 +51,65 @@ __all__ = [
     "absolute",
 ]
 
+@dataclass(frozen=True)
+class Precision:
+    """The facts of one working precision, read from the engine's scalar traits
+    (cpp/include/loschmidt/scalar/traits.hpp, through ``_core.precisions``).
+
+    Two different facts bound round-off, and each use takes the one it means:
+
+    - ``unit_roundoff``: half an ulp of 1 in the representation, 2^-53, 2^-106, 2^-212 (a 106-bit
+      or 212-bit significand). How finely a value is resolved: decimal output, and the floor of a
+      tolerance (an error estimate is a difference of two states, resolved no finer than this).
+    - ``operation_error``: the guaranteed relative error of one + - * / sqrt, 2^-53, 2^-103,
+      2^-208 (dd and qd operations are not correctly rounded; proven bounds 3u^2 to 9.8u^2 for dd,
+      u = 2^-53, see double_double.hpp; measured maxima <= 3 units of 2^-212 for qd). What error
+      bounds of computed results are measured in; the engine's step floor uses it.
+
+    Attributes
+    ----------
+    name : str
+        The precision's name.
+    limbs : int
+        float64 limbs per value.
+    digits : int
+        Decimal digits carried.
+    unit_roundoff, operation_error : float
+        See above.
+    default_tolerance : float
+        Default relative tolerance of the integrations.
+    order_limit : int
+        Default largest number of rows of the extrapolation tableau.
+    compensated : bool
+        Double with the compensated state update ("f64c").
+    """
+
+    name: str
+    limbs: int
+    digits: int
+    unit_roundoff: float
+    operation_error: float
+    default_tolerance: float
+    order_limit: int
+    compensated: bool
+
+    @property
+    def bits(self) -> int:
+        """Significand bits: -log2(unit_roundoff) (53, 106, 212)."""
+        return -math.frexp(self.unit_roundoff)[1] + 1
+
+
+#: The working precisions by name, narrowest first, from the engine's one table.
+TABLE: dict[str, Precision] = {str(row[0]): Precision(str(row[0]), int(row[1]), int(row[2]), float(row[3]),
+                                                       float(row[4]), float(row[5]), int(row[6]), bool(row[7]))
+                               for row in _core.precisions}
+
 #: Names of the working precisions, narrowest first (double, compensated double, double-double,
 #: quad-double).
-PRECISIONS = ("f64", "f64c", "dd", "qd")
+PRECISIONS = tuple(TABLE)
 
-_LIMBS = {"f64": 1, "f64c": 1, "dd": 2, "qd": 4}
-# Unit roundoff of each precision (METHODS.md section 1) and the decimal digits it carries.
-_EPSILON = {"f64": 2.0**-53, "f64c": 2.0**-53, "dd": 2.0**-106, "qd": 2.0**-212}
-_DIGITS = {"f64": 15, "f64c": 15, "dd": 31, "qd": 62}
 # Digits that make to_string -> to_limbs a round trip for values whose limbs are contiguous.
 _ROUNDTRIP_DIGITS = {"f64": 17, "f64c": 17, "dd": 34, "qd": 66}
-# The C++ kernels: f64c computes in plain double.
-_KERNEL = {"f64": "f64", "f64c": "f64", "dd": "dd", "qd": "qd"}
 
 
 def check_precision(precision: Any, name: str = "precision") -> str:
@@ -82,7 +136,7 @@ def check_precision(precision: Any, name: str = "precision") -> str:
     """
     if not isinstance(precision, str):
         raise TypeError(f"{name}: expected one of {PRECISIONS}, got {type(precision).__name__}")
-    if precision not in _LIMBS:
+    if precision not in TABLE:
         raise ValueError(f"{name}: unknown precision {precision!r}; expected one of {PRECISIONS}")
     return precision
 
@@ -106,11 +160,34 @@ def limb_count(precision: str) -> int:
     >>> [precision.limb_count(p) for p in precision.PRECISIONS]
     [1, 1, 2, 4]
     """
-    return _LIMBS[check_precision(precision)]
+    return TABLE[check_precision(precision)].limbs
+
+
+def info(precision: str) -> Precision:
+    """Every fact of a working precision (``TABLE``).
+
+    Parameters
+    ----------
+    precision : {"f64", "f64c", "dd", "qd"}
+        A working precision.
+
+    Returns
+    -------
+    Precision
+
+    Examples
+    --------
+    >>> from loschmidt import precision
+    >>> p = precision.info("dd")
+    >>> p.limbs, p.bits, p.unit_roundoff == 2.0**-106, p.operation_error == 2.0**-103
+    (2, 106, True, True)
+    """
+    return TABLE[check_precision(precision)]
 
 
 def epsilon(precision: str) -> float:
-    """Unit roundoff of a working precision.
+    """Unit roundoff of a working precision (``Precision.unit_roundoff``: the resolution of the
+    representation; the bound of one operation is ``Precision.operation_error``).
 
     Parameters
     ----------
@@ -128,7 +205,31 @@ def epsilon(precision: str) -> float:
     >>> precision.epsilon("dd") == 2.0**-106
     True
     """
-    return _EPSILON[check_precision(precision)]
+    return TABLE[check_precision(precision)].unit_roundoff
+
+
+def default_tolerance(precision: str) -> float:
+    """Default relative tolerance of the integrations in a working precision.
+
+    A few hundred units of round-off, so the truncation error of the extrapolation sits just
+    above the precision's floor.
+
+    Parameters
+    ----------
+    precision : {"f64", "f64c", "dd", "qd"}
+        A working precision.
+
+    Returns
+    -------
+    float
+
+    Examples
+    --------
+    >>> from loschmidt import precision
+    >>> precision.default_tolerance("dd")
+    1e-28
+    """
+    return TABLE[check_precision(precision)].default_tolerance
 
 
 def digits(precision: str) -> int:
@@ -144,7 +245,7 @@ def digits(precision: str) -> int:
     int
         15, 15, 31 or 62.
     """
-    return _DIGITS[check_precision(precision)]
+    return TABLE[check_precision(precision)].digits
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -541,12 +642,6 @@ def convert(limbs: Any, precision: str) -> np.ndarray:
 # Element-wise arithmetic on limb arrays through the C++ kernels
 
 
-def _kernel(precision: str, kind: str):
-    from . import _core
-
-    return getattr(_core, f"limb_{kind}_{_KERNEL[check_precision(precision)]}")
-
-
 def _operand(x: Any, precision: str, name: str) -> np.ndarray:
     k = limb_count(precision)
     if isinstance(x, np.ndarray) and x.dtype == np.float64 and x.ndim >= 1 and x.shape[-1] == k:
@@ -563,14 +658,19 @@ def _binary(op: int, a: Any, b: Any, precision: str) -> np.ndarray:
     except ValueError:
         raise ValueError(f"a, b: shapes {la.shape[:-1]} and {lb.shape[:-1]} do not broadcast") from None
     shape = la.shape
-    res = _kernel(precision, "binary")(op, np.ascontiguousarray(la).reshape(-1, k), np.ascontiguousarray(lb).reshape(-1, k))
+    from . import engine
+
+    res = engine.limb_binary(op, np.ascontiguousarray(la).reshape(-1, k), np.ascontiguousarray(lb).reshape(-1, k),
+                             check_precision(precision))
     return res.reshape(shape)
 
 
 def _unary(op: int, a: Any, precision: str) -> np.ndarray:
     k = limb_count(precision)
     la = _operand(a, precision, "a")
-    res = _kernel(precision, "unary")(op, np.ascontiguousarray(la).reshape(-1, k))
+    from . import engine
+
+    res = engine.limb_unary(op, np.ascontiguousarray(la).reshape(-1, k), check_precision(precision))
     return res.reshape(la.shape)
 
 

@@ -17,13 +17,14 @@ import base64
 import datetime
 import html
 import json
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Iterable, Sequence
 
 import numpy as np
 
-__all__ = ["write_report", "read_settings", "store_scale", "load_results", "statistics", "THRESHOLDS",
-           "scattering_section"]
+__all__ = ["write_report", "read_settings", "store_scale", "load_results", "statistics", "rerun_options",
+           "RerunOptions", "map_kind", "THRESHOLDS", "scattering_section"]
 
 #: Round-trip distances at which the reversible fraction is tabulated.
 THRESHOLDS = (1e-4, 1e-6, 1e-8, 1e-10, 1e-12, 1e-14)
@@ -155,6 +156,121 @@ def load_results(store: Any, columns: Iterable[str] | None = None):
 
 
 # ---------------------------------------------------------------------------------------------------
+# integrating one member again, with every setting of its store
+
+#: Recorded sweep options passed unchanged to ``loschmidt.integrate`` when a member is run again.
+_INTEGRATE_KEYS = ("method", "tol", "atol", "max_steps", "max_wall_time", "max_order", "initial_step",
+                   "regularization", "pn", "c", "merger_factor")
+#: Recorded options that are not keyword arguments of ``integrate`` and how a rerun uses them:
+#: the span, the precision and radii go into the System; the rest describe the task around the
+#: integrations (a lifetime's spans and escape test, an amplification's displacement).
+_OTHER_KEYS = ("t", "t_max", "precision", "radii", "interval", "distance_factor", "perturbation", "body", "axis")
+
+
+@dataclass(frozen=True)
+class RerunOptions:
+    """How to integrate one member of a store again exactly as the sweep did.
+
+    Attributes
+    ----------
+    task : str
+        The sweep's task.
+    precision : str
+        The working precision.
+    t : str
+        The span of one leg (``t``), or ``t_max`` for task ``"lifetime"`` (exact decimal string).
+    integrate : dict
+        Keyword arguments of ``loschmidt.integrate`` (every recorded option that is one).
+    radii : list of float or None
+        One radius per body shared by every member (the sweep's ``radii``), else None.
+    task_options : dict
+        The recorded options that shape the task rather than one integration (``interval``,
+        ``distance_factor``, ``perturbation``, ``body``, ``axis``).
+    """
+
+    task: str
+    precision: str
+    t: str
+    integrate: dict
+    radii: list | None
+    task_options: dict
+
+
+def rerun_options(manifest: dict) -> RerunOptions:
+    """Turn a store's recorded options into the arguments that integrate one member again.
+
+    Every option in the manifest is accounted for: it is either a keyword argument of
+    ``loschmidt.integrate`` or one of the task's own settings; an option this function does not
+    know raises ``ValueError`` rather than being dropped, so a rerun can never silently differ
+    from the sweep (a picture that contradicts the stored data).
+
+    Parameters
+    ----------
+    manifest : dict
+        The store's manifest (``read_manifest``).
+
+    Returns
+    -------
+    RerunOptions
+
+    Examples
+    --------
+    >>> from loschmidt.report import rerun_options
+    >>> m = {"definition": {"task": "integrate", "precision": "f64",
+    ...      "options": {"t": "2", "precision": "f64", "method": "chain", "tol": 1e-13, "pn": [1],
+    ...                  "c": "15", "merger_factor": 8.0, "max_steps": None}}}
+    >>> o = rerun_options(m)
+    >>> sorted(o.integrate), o.t
+    (['c', 'merger_factor', 'method', 'pn', 'tol'], '2')
+    """
+    if not isinstance(manifest, dict) or not isinstance(manifest.get("definition"), dict):
+        raise ValueError("manifest: expected a store manifest with a 'definition'")
+    d = manifest["definition"]
+    task = str(d.get("task", ""))
+    opts = dict(d.get("options") or {})
+    unknown = sorted(set(opts) - set(_INTEGRATE_KEYS) - set(_OTHER_KEYS))
+    if unknown:
+        raise ValueError(f"manifest: option(s) {unknown} of task {task!r} are not known to a rerun; "
+                         "refusing to draw a member with settings other than the sweep's")
+    t = opts.get("t_max") if task == "lifetime" else opts.get("t")
+    if t is None:
+        raise ValueError(f"manifest: task {task!r} records no time span (t)")
+    precision = d.get("precision") or opts.get("precision") or "dd"
+    kw = {k: opts[k] for k in _INTEGRATE_KEYS if opts.get(k) is not None}
+    if task == "lifetime":
+        kw.setdefault("method", "chain")  # the lifetime task's default (loschmidt.tasks)
+    if kw.get("pn") is not None:
+        kw["pn"] = tuple(kw["pn"])
+    radii = opts.get("radii")
+    rest = {k: opts[k] for k in ("interval", "distance_factor", "perturbation", "body", "axis") if k in opts}
+    return RerunOptions(task, str(precision), str(t), kw, None if radii is None else list(radii), rest)
+
+
+def map_kind(manifest: dict) -> str:
+    """The ``loschmidt plot --kind`` that maps a store over the free-fall region.
+
+    Parameters
+    ----------
+    manifest : dict
+        The store's manifest (``read_manifest``).
+
+    Returns
+    -------
+    str
+        ``"lifetime"`` for a store of task ``"lifetime"``, ``"map"`` (of the round-trip distance)
+        otherwise.
+
+    Examples
+    --------
+    >>> from loschmidt.report import map_kind
+    >>> map_kind({"definition": {"task": "lifetime"}}), map_kind({"definition": {"task": "roundtrip"}})
+    ('lifetime', 'map')
+    """
+    task = (manifest.get("definition") or {}).get("task") if isinstance(manifest, dict) else None
+    return "lifetime" if task == "lifetime" else "map"
+
+
+# ---------------------------------------------------------------------------------------------------
 # statistics
 
 
@@ -268,12 +384,32 @@ def _table(rows: Sequence[tuple[str, str]], head: tuple[str, str] | None = None)
     return "\n".join(out)
 
 
+def _number_text(value: Any) -> str:
+    """A recorded option for reading: exact decimal strings (``"4.57130457797273629...e+3"``,
+    ``"1.0e+1"``) shortened to 12 significant digits; the exact values stay in the manifest."""
+    from decimal import Decimal, InvalidOperation
+
+    if isinstance(value, str):
+        try:
+            d = Decimal(value)
+        except InvalidOperation:
+            return value
+        if d.is_finite():
+            return f"{float(d):.12g}"
+        return value
+    if isinstance(value, float):
+        return f"{value:.12g}"
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(_number_text(v) for v in value) + "]"
+    return str(value)
+
+
 def _settings_rows(manifest: dict) -> list[tuple[str, str]]:
     d = manifest.get("definition", {})
     rows = [("task", d.get("task", "?"))]
     for k, v in (d.get("options") or {}).items():
         if v is not None:
-            rows.append((f"option {k}", v))
+            rows.append((f"option {k}", _number_text(v)))
     ens = d.get("ensemble") or {}
     rows.append(("ensemble", f"{ens.get('family', '?')}, {ens.get('members', '?')} members of "
                              f"{ens.get('bodies', '?')} bodies"))
@@ -294,7 +430,8 @@ def _label(store: Path, manifest: dict, settings: dict) -> str:
     return f"{store.name} ({d.get('precision') or d.get('task')})"
 
 
-def write_report(stores: Any, path: Any, title: str | None = None, threshold: float = 1e-10) -> Path:
+def write_report(stores: Any, path: Any, title: str | None = None, threshold: float | None = None,
+                 sections: Sequence[tuple[str, Sequence[tuple[str, str]]]] = ()) -> Path:
     """Write one self-contained HTML report on one or more sweep stores.
 
     Parameters
@@ -306,7 +443,11 @@ def write_report(stores: Any, path: Any, title: str | None = None, threshold: fl
     title : str, optional
         Page title.
     threshold : float, optional
-        Round-trip distance counted as reversible in the maps (default 1e-10).
+        Round-trip distance counted as reversible in the maps (default
+        ``loschmidt.chaos.REVERSIBLE_THRESHOLD``, 1e-10).
+    sections : sequence of (str, rows), optional
+        Extra sections after the pictures, each a title and (name, value) rows (the demo adds the
+        irreversibility threshold of a representative member).
 
     Returns
     -------
@@ -315,15 +456,24 @@ def write_report(stores: Any, path: Any, title: str | None = None, threshold: fl
     """
     from . import plots
 
+    from .chaos import REVERSIBLE_THRESHOLD
+
+    threshold = REVERSIBLE_THRESHOLD if threshold is None else threshold
     paths = [Path(stores)] if isinstance(stores, (str, Path)) else [Path(s) for s in stores]
     if not paths:
         raise ValueError("stores: at least one store is needed")
     entries = []
     for p in paths:
         manifest = read_manifest(p)
-        settings = read_settings(p)
+        settings = dict(read_settings(p))
         df = load_results(p)
         entries.append((p, manifest, settings, df))
+    # every section and panel gets its own name: two stores with one label are told apart by task
+    # and directory
+    labels = [_label(p, m, s) for p, m, s, _d in entries]
+    for (p, m, s, _d), label in zip(entries, labels):
+        if labels.count(label) > 1:
+            s["label"] = f"{label}, {m.get('definition', {}).get('task', '?')}: {p.name}"
     scale = next((store_scale(s) for _p, _m, s, _d in entries if store_scale(s) is not None), None)
     u = plots.axis_units(scale)
 
@@ -331,7 +481,7 @@ def write_report(stores: Any, path: Any, title: str | None = None, threshold: fl
     heading = title or ("loschmidt report: " + ", ".join(p.name for p in paths))
     parts.append(f"<h1>{html.escape(heading)}</h1>")
     now = datetime.datetime.now(datetime.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
-    from . import __version__
+    from ._version import __version__
 
     parts.append(f'<p class="muted">Written {now} by loschmidt {html.escape(str(__version__))}. '
                  f"Reversible means the round trip returned within delta &le; {threshold:.0e} of the start "
@@ -355,9 +505,14 @@ def write_report(stores: Any, path: Any, title: str | None = None, threshold: fl
             parts.append(_img(plots.lifetime_map(mapped(lifetimes), units=u), "map of lifetimes"))
         parts.append(_img(plots.lifetime_histogram(lifetimes, units=u), "histogram of lifetimes"))
 
-    scatterings = {_label(p, m, s): d for p, m, s, d in entries if m.get("task") == "scattering" and len(d)}
+    scatterings = {_label(p, m, s): d for p, m, s, d in entries
+                   if (m.get("definition") or {}).get("task") == "scattering" and len(d)}
     for label, df in scatterings.items():
         parts.extend(scattering_section(label, df))
+
+    for name, rows in sections:
+        parts.append(f"<h2>{html.escape(str(name))}</h2>")
+        parts.append(_table(rows))
 
     for p, manifest, settings, df in entries:
         label = _label(p, manifest, settings)

@@ -778,8 +778,9 @@ def scatter(
 # ---------------------------------------------------------------------------------------------
 # the sweep task "scattering"
 # ---------------------------------------------------------------------------------------------
-_TASK_KEYS = ("t_max", "budget_periods", "precision", "method", "tol", "max_steps", "max_wall_time",
-              "tidal_tolerance", "distance_factor", "check_every")
+#: The integration options (loschmidt.options) the task "scattering" takes.
+_INTEGRATION_KEYS = ("tol", "max_steps", "max_wall_time", "distance_factor", "check_every")
+_TASK_KEYS = ("t_max", "budget_periods", "precision", "method", "tidal_tolerance") + _INTEGRATION_KEYS
 
 #: Columns of the task "scattering", in order.
 TASK_COLUMNS = ("outcome", "status", "escaper", "binary_i", "binary_j", "semimajor_axis", "eccentricity",
@@ -808,29 +809,30 @@ def prepare_scattering(**options: Any) -> dict:
     dict
         The options, validated and JSON-friendly (hashed into the store's manifest).
     """
-    from .integrate import METHODS, _positive_or_none, check_tolerance
-    from .outcome import _check_factor
+    from . import options as _o
     from .precision import check_precision
 
     unknown = sorted(set(options) - set(_TASK_KEYS))
     if unknown:
         raise ValueError(f"options: unknown {unknown}; expected some of {list(_TASK_KEYS)}")
     prec = check_precision(options.get("precision", "f64"))
-    method = options.get("method", "gbs")
-    if method not in METHODS:
-        raise ValueError(f"method: expected one of {METHODS}, got {method!r}")
-    out: dict = {"precision": prec, "method": method, "tol": check_tolerance(options.get("tol"), prec)}
+    method = _o.check_method(options.get("method", "gbs"))
+    # the integration options go through their one declaration (loschmidt.options)
+    given = {k: options.get(k) for k in _INTEGRATION_KEYS}
+    if given["check_every"] is None:
+        given["check_every"] = 10
+    if given["distance_factor"] is None:
+        given["distance_factor"] = _o.DEFAULT_DISTANCE_FACTOR
+    settings = _o.resolve(given, method=method, precision=prec, entry="integrate")
+    out: dict = {"precision": prec, "method": method, "tol": settings["tol"]}
     with mpmath.workprec(53 + GUARD_BITS):
         out["tidal_tolerance"] = float(_tolerance(options.get("tidal_tolerance", DEFAULT_TIDAL_TOLERANCE)))
         out["t_max"] = float(_positive(options["t_max"], "t_max")) if options.get("t_max") is not None else None
         out["budget_periods"] = float(_positive(options.get("budget_periods", 1000), "budget_periods"))
-    out["distance_factor"] = _check_factor(options.get("distance_factor", 10.0))
-    out["max_steps"] = _positive_or_none(options.get("max_steps"), "max_steps", integer=True)
-    out["max_wall_time"] = _positive_or_none(options.get("max_wall_time"), "max_wall_time")
-    every = _positive_or_none(options.get("check_every", 10), "check_every", integer=True)
-    if every is None or every > 2**31 - 1:
-        raise ValueError(f"check_every: expected a positive integer, got {options.get('check_every')!r}")
-    out["check_every"] = int(every)
+    out["distance_factor"] = settings["distance_factor"]
+    out["max_steps"] = settings["max_steps"]
+    out["max_wall_time"] = settings["max_wall_time"]
+    out["check_every"] = int(settings["check_every"])
     return out
 
 

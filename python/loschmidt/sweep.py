@@ -54,6 +54,7 @@ from typing import Any, Callable, Iterable, Iterator, Mapping
 
 import numpy as np
 
+from . import options as _options
 from .batch import batch_options, integrate_batch, roundtrip_batch
 from .ensemble import Ensemble
 from .store import SweepStore, _convert, limbs as _limbs
@@ -160,8 +161,8 @@ def _no_options(**options: Any) -> dict:
     return {}
 
 
-_BATCH_KEYS = ("t", "method", "precision", "tol", "atol", "max_steps", "max_wall_time", "max_order", "initial_step",
-               "radii", "regularization", "pn", "c", "merger_factor")
+#: Options of the batch tasks: the span, method, precision and every batch option of loschmidt.options.
+_BATCH_KEYS = ("t", "method", "precision") + _options.names_for("batch")
 
 
 def _prepare_batch(**options: Any) -> dict:
@@ -448,6 +449,8 @@ class Sweep:
         self._source = _Source(ensemble, self.chunk_size)
         if self._source.members is not None:
             self._total = self._source.members
+        if self._source.radii and self.options.get("method") in _options.METHODS:
+            _options.check_carried_radii(self.options["method"])  # before the store is touched
         self.definition = {
             "format": "loschmidt-sweep-1",
             "task": self.task.name,
@@ -498,8 +501,11 @@ class Sweep:
         from tqdm import tqdm
 
         initial = sum(self.store.chunk_info(i)["rows"] for i in finished)
-        bar = tqdm(total=self._total, initial=initial, unit="system", desc=f"sweep {self.task.name}",
-                   disable=not progress, smoothing=0.05, dynamic_ncols=True, file=sys.stderr)
+        # the bar counts members kept (written to the store), never members still running, and its
+        # rate (hence the ETA) is the average since this run began: chunks finish in lumps, and a
+        # moving average over them swung the early ETA to twice the real time
+        bar = tqdm(total=self._total, initial=initial, unit="system", desc=f"sweep {self.task.name} (kept)",
+                   disable=not progress, smoothing=0, dynamic_ncols=True, file=sys.stderr)
         stop = _StopRequest(bar.write if progress else (lambda msg: print(msg, file=sys.stderr)))
         try:
             with stop:
@@ -544,15 +550,13 @@ class Sweep:
         for index, start, chunk, digest in todo:
             if stop.requested:
                 return
-            seen = [0]
-
-            def advance(done: int, seen: list = seen) -> None:
-                bar.update(done - seen[0])
-                seen[0] = done
+            def advance(done: int, size: int = len(chunk)) -> None:
+                bar.set_postfix_str(f"running chunk: {done}/{size}", refresh=True)
 
             cols = _run_chunk(self.task.run, chunk, self._runtime_options(self.threads, advance))
             self._write(index, start, chunk, digest, cols)
-            bar.update(len(chunk) - seen[0])
+            bar.set_postfix_str("", refresh=False)
+            bar.update(len(chunk))
 
     def _run_pool(self, todo: Iterator, bar: Any, stop: _StopRequest) -> None:
         pool = _pool(self._backend, self.executor)

@@ -411,10 +411,9 @@ class System:
 
     # -- diagnostics ----------------------------------------------------------------------------------
     def _diagnostics(self) -> dict:
-        from . import _core
+        from . import engine
 
-        kernel = getattr(_core, f"diagnostics_{self._precision}")
-        return kernel(self._m, self._x, self._v)
+        return engine.diagnostics(self._m, self._x, self._v, self._precision)
 
     def energy(self, limbs: bool = False) -> Any:
         """Total energy T + U (G = 1), computed in the working precision with compensated sums.
@@ -505,7 +504,7 @@ class System:
         dict
             Format ``"loschmidt.system"``; ``from_dict`` reads it back bit for bit.
         """
-        from . import __version__
+        from ._version import __version__
         from .serialize import FORMAT_VERSION, decimal_strings, limbs_to_json
 
         return {

@@ -5,17 +5,18 @@ Both are registered in the sweep registry when :mod:`loschmidt.sweep` is importe
 
 Task "lifetime"
     Options ``t_max`` (required), ``interval`` (default 2), ``precision`` (default "f64"),
-    ``method`` (default "chain"), ``tol``, ``max_steps``, ``max_wall_time`` (per interval),
+    ``method`` (default "chain"), ``tol``, ``max_steps``, ``max_wall_time`` (per member),
     ``distance_factor``, and for the chain method ``regularization``, ``pn``, ``c``,
-    ``merger_factor`` (post-Newtonian black-hole systems: a merger ends a member's run). Each member
-    is integrated in spans of ``interval`` until ``loschmidt.outcome`` reports an escape or a
-    collision, the engine stops at a contact or a merger, or ``t_max`` is reached
-    (``loschmidt.integrate_until_escape``), on ``threads`` Python threads (the engine releases the
-    GIL). Columns: ``lifetime`` (the end of the first span at which the escape test holds, or the
-    exact time of a contact or merger; NaN when none by ``t_max``), ``outcome`` (the kind at the end,
-    ``"merger"`` for a merger), ``escaper`` (index of the first escaper, -1 if none), ``status``,
-    ``t_reached``, ``energy_error``, ``steps``, ``evaluations``, ``wall_time``, ``pair_i``,
-    ``pair_j`` (the pair of a contact or merger, else -1).
+    ``merger_factor`` (post-Newtonian black-hole systems: a merger ends a member's run). The chunk
+    runs as one batch of the C++ engine (threads as for ``integrate_batch``) with the escape stop
+    condition (``stop="escape"``, the test of :mod:`loschmidt.outcome`, checked every few steps):
+    each member runs until a body escapes, two bodies touch (radii) or merge, or ``t_max``; no
+    stepping loop in Python. Columns: ``lifetime`` (the end of the first span of ``interval`` in
+    which the escape test held, as the former span-by-span loop reported it, or the exact time of
+    a contact or merger; NaN when none by ``t_max``), ``outcome`` (the kind at the end,
+    ``"merger"`` for a merger), ``escaper`` (index of the escaper, -1 if none), ``status``,
+    ``t_reached`` (the exact time the run stopped), ``energy_error``, ``steps``, ``evaluations``,
+    ``wall_time``, ``pair_i``, ``pair_j`` (the pair of a contact or merger, else -1).
 
 Task "amplification"
     Options ``t`` (required), ``perturbation`` (default 1e-20), ``body`` (default 0), ``axis``
@@ -34,14 +35,14 @@ Task "amplification"
 
 from __future__ import annotations
 
-import concurrent.futures as cf
 import math
 import numbers
-import os
-from typing import Any, Callable, Mapping
+from fractions import Fraction
+from typing import Any, Mapping
 
 import numpy as np
 
+from . import options as _o
 from . import precision as _p
 from .batch import (
     _STATUS_NAMES,
@@ -53,14 +54,7 @@ from .batch import (
     batch_options,
 )
 
-__all__ = ["prepare_lifetime", "run_lifetime", "prepare_amplification", "run_amplification"]
-
-
-def _cores() -> int:
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # pragma: no cover - not Linux
-        return os.cpu_count() or 1
+__all__ = ["LIFETIME_OPTIONS", "prepare_lifetime", "run_lifetime", "prepare_amplification", "run_amplification"]
 
 
 def _unknown(options: Mapping[str, Any], keys: tuple) -> None:
@@ -73,8 +67,9 @@ def _unknown(options: Mapping[str, Any], keys: tuple) -> None:
 # lifetime
 
 _CHAIN_KEYS = ("regularization", "pn", "c", "merger_factor")
-_LIFETIME_KEYS = ("t_max", "interval", "precision", "method", "tol", "max_steps", "max_wall_time",
-                  "distance_factor") + _CHAIN_KEYS
+#: The integration options (loschmidt.options) task "lifetime" takes.
+LIFETIME_OPTIONS = ("tol", "max_steps", "max_wall_time", "distance_factor") + _CHAIN_KEYS
+_LIFETIME_KEYS = ("t_max", "interval", "precision", "method") + LIFETIME_OPTIONS
 
 
 def prepare_lifetime(**options: Any) -> dict:
@@ -90,15 +85,14 @@ def prepare_lifetime(**options: Any) -> dict:
     dict
         The options, validated and JSON-friendly (hashed into the store's manifest).
     """
-    from .outcome import DEFAULT_DISTANCE_FACTOR, _check_factor
-
     _unknown(options, _LIFETIME_KEYS)
     if "t_max" not in options:
         raise ValueError("t_max: the longest span to follow each member is required")
+    factor = _o.check_distance_factor(options.get("distance_factor", _o.DEFAULT_DISTANCE_FACTOR))
     opts = batch_options(
         options["t_max"], precision=options.get("precision", "f64"), method=options.get("method", "chain"),
-        tol=options.get("tol"), max_steps=options.get("max_steps"), max_wall_time=options.get("max_wall_time"),
-        **{k: options[k] for k in _CHAIN_KEYS if k in options},
+        stop="escape", distance_factor=factor, **{k: options[k] for k in LIFETIME_OPTIONS if k in options and
+                                                   k != "distance_factor"},
     )
     interval = options.get("interval", 2)
     for name, value in (("t_max", options["t_max"]), ("interval", interval)):
@@ -106,41 +100,23 @@ def prepare_lifetime(**options: Any) -> dict:
             raise TypeError(f"{name}: expected a number, got bool")
         if _p.exact_fraction(value, name) <= 0:
             raise ValueError(f"{name}: must be positive, got {value!r}")
-    factor = options.get("distance_factor", DEFAULT_DISTANCE_FACTOR)
-    _check_factor(factor)
-    out = {
-        "t_max": opts["t"],
-        "interval": str(_p.to_string(_p.to_limbs(interval, opts["precision"], name="interval"), exact=True)),
-        "precision": opts["precision"],
-        "method": opts["method"],
-        "tol": opts["tol"],
-        "max_steps": opts["max_steps"],
-        "max_wall_time": opts["max_wall_time"],
-        "distance_factor": float(factor),
-    }
-    out.update({k: opts[k] for k in _CHAIN_KEYS if k in opts})  # only those given, as batch_options
+    # The batch options in their manifest form, the span renamed t_max; "stop": "escape" (the
+    # engine's stop since issue 16; before it, a Python loop over spans of ``interval``) makes a
+    # store of the old path refuse this definition rather than mix the two.
+    out = {"t_max": opts.pop("t"), **opts}
+    out["interval"] = str(_p.to_string(_p.to_limbs(interval, opts["precision"], name="interval"), exact=True))
     return out
 
 
-def _one_lifetime(system: Any, options: Mapping[str, Any]) -> tuple:
-    from .outcome import integrate_until_escape
-
-    kw: dict = {"method": options["method"], "tol": options["tol"]}
-    for key in ("max_steps", "max_wall_time"):
-        if options.get(key):
-            kw[key] = options[key]
-    kw.update({k: options[k] for k in _CHAIN_KEYS if k in options})
-    res, found, lifetime = integrate_until_escape(
-        system, options["t_max"], interval=options["interval"], distance_factor=options["distance_factor"], **kw)
-    escaper = found.escaper if found.kind == "escape" and found.escaper is not None else -1
-    kind = "merger" if res.status == "merger" else found.kind
-    pair = res.collision if res.collision is not None else (-1, -1)
-    return (float("nan") if lifetime is None else lifetime, kind, escaper, res.status, res.t,
-            res.energy_error, res.steps, res.evaluations, res.wall_time, pair[0], pair[1])
+def _span_end(t: float, interval: Fraction) -> float:
+    """The end of the first span of ``interval`` (from 0) that contains time t > 0."""
+    q = Fraction(t) / interval
+    k = q.numerator // q.denominator + (q.denominator != 1)
+    return float(max(k, 1) * interval)
 
 
 def run_lifetime(chunk: Any, options: Mapping[str, Any]) -> dict:
-    """Task "lifetime" on one chunk: the members on ``threads`` threads, in member order.
+    """Task "lifetime" on one chunk: one batch of the C++ engine with the escape stop condition.
 
     Parameters
     ----------
@@ -154,39 +130,65 @@ def run_lifetime(chunk: Any, options: Mapping[str, Any]) -> dict:
     dict of str to numpy.ndarray
         The columns listed in the module docstring, one row per member.
     """
-    from . import _core
+    from .outcome import outcome
+    from .system import System
 
-    threads = options.get("threads") or _cores()
-    progress: Callable[[int], Any] | None = options.get("progress")
-    prec = options["precision"]
-    rows: list[Any] = [None] * len(chunk)
-    pool = cf.ThreadPoolExecutor(max_workers=max(1, min(int(threads), len(chunk))))
-    try:
-        futures = {pool.submit(_one_lifetime, chunk.system(i, prec), options): i for i in range(len(chunk))}
-        done = 0
-        for fut in cf.as_completed(futures):
-            rows[futures[fut]] = fut.result()
-            done += 1
-            if progress is not None:
-                progress(done)
-    except BaseException:
-        _core.request_stop(True)  # stop the members still running on the other threads
-        pool.shutdown(wait=True, cancel_futures=True)
-        _core.request_stop(False)
-        raise
-    pool.shutdown(wait=True)
-    names = ("lifetime", "outcome", "escaper", "status", "t_reached", "energy_error", "steps", "evaluations",
-             "wall_time", "pair_i", "pair_j")
-    dtypes = (np.float64, object, np.int64, object, np.float64, np.float64, np.int64, np.int64, np.float64,
-              np.int64, np.int64)
-    return {n: np.array([r[k] for r in rows], dtype=d) for k, (n, d) in enumerate(zip(names, dtypes))}
+    opts = dict(options)
+    threads, progress = opts.pop("threads", None), opts.pop("progress", None)
+    prec, method = opts["precision"], opts["method"]
+    interval = _p.exact_fraction(opts.pop("interval"), "interval")
+    factor = opts["distance_factor"]
+    ml, x, v = _members(chunk, None, None, prec)
+    count, n = ml.shape[:2]
+    radii = None
+    if chunk.radii is not None:
+        _o.check_carried_radii(method)
+        radii = chunk.radii
+    batch = {"t": opts.pop("t_max"), **opts}
+    raw = _execute("integrate", ml, x, v, batch, _radii_for(radii, count, n), _threads(threads, count), progress)
+    code = np.asarray(raw.status, dtype=np.int64)
+    status = _STATUS_NAMES[code]
+    t_reached = _p.to_float(raw.t).reshape(count)
+    t_max = float(_p.to_float(_p.to_limbs(batch["t"], prec)))
+    lifetime = np.full(count, np.nan)
+    kind = np.full(count, "undecided", dtype=object)
+    escaper = np.full(count, -1, dtype=np.int64)
+    for i in range(count):
+        if not _SUCCESS[code[i]]:
+            continue  # the run did not finish: no lifetime, outcome undecided
+        if status[i] == "stop_condition":  # the engine's escape test held (the test of loschmidt.outcome)
+            kind[i], escaper[i] = "escape", int(raw.stop_i[i])
+            lifetime[i] = _span_end(float(t_reached[i]), interval)
+            continue
+        member_radii = None if radii is None else np.asarray(radii)[i]  # an Ensemble's radii are (M, N)
+        state = System.from_limbs(ml[i], raw.positions[i], raw.velocities[i], prec, radii=member_radii, check=False)
+        found = outcome(state, factor)
+        kind[i] = "merger" if status[i] == "merger" else found.kind
+        if found.kind == "escape" and found.escaper is not None:
+            escaper[i] = int(found.escaper)
+        if status[i] in ("collision", "merger"):
+            lifetime[i] = float(t_reached[i])  # the exact time of the event
+        elif found.kind in ("escape", "collision"):
+            lifetime[i] = t_max
+    return {
+        "lifetime": lifetime,
+        "outcome": kind,
+        "escaper": escaper,
+        "status": status,
+        "t_reached": np.asarray(t_reached, dtype=np.float64),
+        "energy_error": np.asarray(raw.energy_error, dtype=np.float64),
+        "steps": np.asarray(raw.steps, dtype=np.int64),
+        "evaluations": np.asarray(raw.evaluations, dtype=np.int64),
+        "wall_time": np.asarray(raw.wall_time, dtype=np.float64),
+        "pair_i": np.asarray(raw.pair_i, dtype=np.int64),
+        "pair_j": np.asarray(raw.pair_j, dtype=np.int64),
+    }
 
 
 # ---------------------------------------------------------------------------------------------------
 # amplification
 
-_BATCH_KEYS = ("t", "method", "precision", "tol", "atol", "max_steps", "max_wall_time", "max_order",
-               "initial_step", "radii") + _CHAIN_KEYS
+_BATCH_KEYS = ("t", "method", "precision") + _o.names_for("batch")
 _AMPLIFICATION_KEYS = _BATCH_KEYS + ("perturbation", "body", "axis")
 
 
@@ -252,6 +254,7 @@ def run_amplification(chunk: Any, options: Mapping[str, Any]) -> dict:
     prec = opts["precision"]
     ml, x, v = _members(chunk, None, None, prec)
     count, n = ml.shape[:2]
+    opts["method"] = _o.resolve_method(opts["method"], n)
     if body >= n:
         raise ValueError(f"body: expected an index below the {n} bodies, got {body}")
     twin = x.copy()
@@ -266,7 +269,7 @@ def run_amplification(chunk: Any, options: Mapping[str, Any]) -> dict:
         "integrate", np.concatenate([ml, ml]), np.concatenate([x, twin]), np.concatenate([v, v]), opts, r,
         _threads(threads, 2 * count), (lambda done: progress(done // 2)) if progress else None,
     )
-    code = np.asarray(both["status"], dtype=np.int64)
+    code = np.asarray(both.status, dtype=np.int64)
     ref, tw = code[:count], code[count:]
     ok = _SUCCESS[ref] & _SUCCESS[tw]
 
@@ -274,7 +277,7 @@ def run_amplification(chunk: Any, options: Mapping[str, Any]) -> dict:
         d = _p.to_float(_p.sub(a, b, prec)).reshape(a.shape[0], -1)
         return np.sqrt(np.sum(d * d, axis=1))
 
-    x1, v1 = both["positions"], both["velocities"]
+    x1, v1 = both.positions, both.velocities
     delta0 = norm(np.concatenate([x, v], axis=1), np.concatenate([twin, v], axis=1))
     delta = norm(np.concatenate([x1[:count], v1[:count]], axis=1), np.concatenate([x1[count:], v1[count:]], axis=1))
     delta = np.where(ok, delta, np.nan)
@@ -284,8 +287,7 @@ def run_amplification(chunk: Any, options: Mapping[str, Any]) -> dict:
         log10 = np.log10(amp)
         exponent = np.log(amp) / t if t != 0 else np.full(count, np.nan)
     status = np.where(_SUCCESS[ref], tw, ref)
-    pair = lambda key: np.asarray(both[key], dtype=np.int64)  # noqa: E731
-    steps, evals, wall = (np.asarray(both[k]) for k in ("steps", "evaluations", "wall_time"))
+    steps, evals, wall = np.asarray(both.steps), np.asarray(both.evaluations), np.asarray(both.wall_time)
     return {
         "status": _STATUS_NAMES[status],
         "reference_status": _STATUS_NAMES[ref],
@@ -295,13 +297,13 @@ def run_amplification(chunk: Any, options: Mapping[str, Any]) -> dict:
         "amplification": amp,
         "log10_amplification": log10,
         "exponent": exponent,
-        "energy_error": np.asarray(both["energy_error"])[:count],
+        "energy_error": np.asarray(both.energy_error)[:count],
         "steps": steps[:count] + steps[count:],
         "evaluations": evals[:count] + evals[count:],
         "wall_time": wall[:count] + wall[count:],
-        "pair_i": pair("pair_i")[:count],
-        "pair_j": pair("pair_j")[:count],
-        "t": both["t"][:count],
+        "pair_i": np.asarray(both.pair_i, dtype=np.int64)[:count],
+        "pair_j": np.asarray(both.pair_j, dtype=np.int64)[:count],
+        "t": both.t[:count],
         "positions": x1[:count],
         "velocities": v1[:count],
     }

@@ -621,7 +621,8 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
         landed = true;
       } else {
         add_increment(stepper.increment());
-        if (!fixed && budget.stalled(to_double(dt_step), to_double(time_now()))) {
+        if (!fixed && (budget.stalled(to_double(dt_step), to_double(time_now())) ||
+                       budget.crawling_in_time(to_double(time_now() - t_start), st.steps + 1, span))) {
           s_total += hmag;
           ++st.steps;
           status = Status::step_underflow;

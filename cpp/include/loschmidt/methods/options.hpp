@@ -51,8 +51,10 @@ struct Options {
   // with atol = 0); a nonzero error on a zero scale counts as infinite.
   double rtol = 1e-12;
   double atol = 0.0;
-  // Budget of attempted (accepted + rejected) macro steps.
-  long long max_steps = 10000000;
+  // Budget of attempted (accepted + rejected) macro steps. The default is high enough never to
+  // end a useful run (1e9 steps take hours) and low enough that a run that cannot progress ends;
+  // Python reads it from here (options.DEFAULT_MAX_STEPS).
+  long long max_steps = 1000000000;
   // Wall-clock budget in seconds; 0 means none.
   double max_wall_time = 0.0;
   // Largest number of rows of the extrapolation tableau (the order reached is 2 * rows); 0 means
@@ -70,7 +72,10 @@ struct Options {
   // Cartesian coordinates, where in dd or qd the steps shrink for millions of steps while staying
   // above the first floor (a head-on collision from rest in dd: 10 million steps in 20 s without
   // reaching it). 2^-50 (about 1e-15) is far below the step of any close encounter the gbs method
-  // can integrate usefully (use the chain method there); 0 switches the test off.
+  // can integrate usefully (use the chain method there); 0 switches the test off. The chain
+  // method, whose steps are fictitious-time steps, applies it to the physical time instead: after
+  // 1000 accepted steps, a mean advance of t per step below min_step_ratio times the requested
+  // span ends the run (RunBudget::crawling_in_time).
   double min_step_ratio = 0x1p-50;
   // Called every few milliseconds (at a step boundary); returning true stops the run with
   // Status::interrupted. Empty means never called.
