@@ -138,7 +138,7 @@ def test_default_method_finishes_free_fall_round_trips():
 
 
 def test_resolve_method_rules():
-    from loschmidt.integrate import CHAIN_MAX_BODIES, resolve_method
+    from loschmidt.options import CHAIN_MAX_BODIES, resolve_method
 
     assert resolve_method(None, 3) == "chain"
     assert resolve_method(None, CHAIN_MAX_BODIES + 1) == "gbs"

@@ -22,8 +22,6 @@ from .system import System
 
 __all__ = [
     "METHODS",
-    "CHAIN_MAX_BODIES",
-    "resolve_method",
     "DEFAULT_TOLERANCE",
     "integrate",
     "Result",
