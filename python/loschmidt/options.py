@@ -567,7 +567,7 @@ OPTIONS: dict[str, Option] = {o.name: o for o in (
        "``Result.collision`` (8: 16 G M / c^2, v/c ~ 0.25 on a circular orbit, where the PN expansion "
        "is about to fail); 0 switches the test off. The bodies are not merged.", _merger_factor,
        methods=("chain",), entries=("integrate", "batch"), manifest="given", field="merger_factor"),
-    _O("stop", "{None, 'escape'}", "None",
+    _O("stop", "{None, 'escape', 'pair_distance'}", "None",
        "``'escape'``: every ``check_every`` accepted steps the engine tests, in double precision, "
        "whether a body escapes, and stops with status ``stop_condition`` when one does; ``t`` is then "
        "the longest span and ``Result.lifetime`` the time it stopped. The test is that of "
@@ -576,7 +576,7 @@ OPTIONS: dict[str, Option] = {o.name: o for o in (
        "``distance_factor`` semimajor axes of the pair); for N > 3 a body unbound from the centre of "
        "mass of all the others, receding, and farther than ``distance_factor`` times their size "
        "(cpp/include/loschmidt/nbody/escape.hpp). It is a trigger: classify the final state with "
-       "``loschmidt.outcome``.", _stop,
+       "``loschmidt.outcome``. ``'pair_distance'`` (``integrate`` only): see ``stop_distance``.", _stop,
        entries=("integrate", "batch"), manifest="given", toml="string",
        field="stop", engine=lambda name: STOP_CODES[name]),
     _O("check_every", "int", "10", "Accepted steps between escape tests.", _check_every,
