@@ -28,7 +28,7 @@ DOCS = ROOT / "docs"
 #: The public modules; each is documented on its own page of the API reference.
 PUBLIC_MODULES = (
     "system", "integrate", "options", "engine", "status", "precision", "chaos", "ics", "ensemble", "orbits", "units",
-    "outcome", "batch", "sweep", "tasks", "store", "plots", "report", "serialize",
+    "outcome", "scattering", "events", "batch", "sweep", "tasks", "store", "plots", "report", "serialize",
 )
 
 FLAGS = doctest.NORMALIZE_WHITESPACE | doctest.ELLIPSIS

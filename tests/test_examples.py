@@ -82,3 +82,11 @@ def test_dask_sweep(tmp_path: Path) -> None:
     text = run_example("dask_sweep", tmp_path)
     assert re.search(r"^dask cluster at tcp://127\.0\.0\.1:\d+: 2 workers, 2 threads", text, flags=re.M), text
     assert "tables equal: True" in text
+
+
+def test_binary_single_scattering(tmp_path: Path) -> None:
+    text = run_example("binary_single_scattering", tmp_path)
+    lines = {float(m.group(1)): m.group(0) for m in re.finditer(r"^v/v_c = (\S+): .*$", text, flags=re.M)}
+    assert set(lines) == {0.3, 3.0}, text
+    assert "ionization" not in lines[0.3]  # energy conservation: no ionization below v_c
+    assert sorted(p.name for p in (tmp_path / "out").iterdir()) == ["cross_sections.csv", "cross_sections.png", "store"]

@@ -11,6 +11,7 @@
 #include "types.hpp"
 #include "loschmidt/batch.hpp"
 #include "loschmidt/methods/dispatch.hpp"
+#include "loschmidt/methods/events.hpp"
 #include "loschmidt/methods/status.hpp"
 #include "loschmidt/nbody/diagnostics.hpp"
 #include "loschmidt/nbody/state.hpp"
@@ -59,6 +60,38 @@ RunRecord run_record(const State<T>& s, const T& t, const Stats& st, const T& e0
   return r;
 }
 
+// The event log as an EventRecord (types.hpp): passages, outer, closest as columns t, i, j, distance.
+inline EventRecord event_record(const EventLog& log) {
+  auto columns = [](const std::vector<PairEvent>& ev) {
+    const auto count = static_cast<py::ssize_t>(ev.size());
+    py::array_t<double> t(count), dist(count);
+    py::array_t<long long> i(count), j(count);
+    auto tt = t.mutable_unchecked<1>();
+    auto dd = dist.mutable_unchecked<1>();
+    auto ii = i.mutable_unchecked<1>();
+    auto jj = j.mutable_unchecked<1>();
+    for (py::ssize_t k = 0; k < count; ++k) {
+      const PairEvent& e = ev[static_cast<std::size_t>(k)];
+      tt(k) = e.t;
+      ii(k) = e.i;
+      jj(k) = e.j;
+      dd(k) = e.distance;
+    }
+    EventColumns c;
+    c.t = t;
+    c.i = i;
+    c.j = j;
+    c.distance = dist;
+    return c;
+  };
+  EventRecord r;
+  r.passages = columns(log.passages);
+  r.outer = columns(log.outer);
+  r.closest = columns(log.closest);
+  r.dropped = log.dropped;
+  return r;
+}
+
 template <class T, bool Compensated>
 void register_engine(py::module_& m, const std::string& suffix) {
   m.def(("diagnostics_" + suffix).c_str(),
@@ -71,7 +104,7 @@ void register_engine(py::module_& m, const std::string& suffix) {
   m.def(("integrate_" + suffix).c_str(),
         [](const std::string& method_name, const limb_array& masses, const limb_array& positions,
            const limb_array& velocities, const limb_array& t_end, const limb_array& times, const Options& options,
-           const ChainOptions& chain) {
+           const ChainOptions& chain, long long max_events) {
           const Method method = method_from_name(method_name);
           State<T> s = read_state<T>(masses, positions, velocities);
           const std::vector<T> tend = read_limbs<T>(t_end, {}, "t");
@@ -96,6 +129,13 @@ void register_engine(py::module_& m, const std::string& suffix) {
           interrupt_poll poll;
           Options opt = options;
           opt.poll = [&poll]() { return poll(); };
+          // The event log (methods/events.hpp), when asked for (max_events > 0): one per run.
+          if (max_events < 0) throw py::value_error("max_events: must be >= 0 (0: no event log)");
+          EventLog log;
+          if (max_events > 0) {
+            log.max_events = max_events;
+            opt.events = &log;
+          }
           ChainReport report;
           ChainOptions copt = chain;
           if (method == Method::chain) copt.report = &report;
@@ -115,6 +155,7 @@ void register_engine(py::module_& m, const std::string& suffix) {
           r.collision_i = report.collision_i;
           r.collision_j = report.collision_j;
           r.rechains = report.rechains;
+          if (opt.events != nullptr) r.events = py::cast(event_record(log));
           const auto count = static_cast<py::ssize_t>(traj_t.size());
           r.trajectory_t = write_limbs<T>(traj_t, {count});
           r.trajectory_positions = write_limbs<T>(traj_x, {count, n, 3});
@@ -122,7 +163,8 @@ void register_engine(py::module_& m, const std::string& suffix) {
           return r;
         },
         py::arg("method"), py::arg("masses"), py::arg("positions"), py::arg("velocities"), py::arg("t_end"),
-        py::arg("times"), py::arg("options"), py::arg("chain"));
+        py::arg("times"), py::arg("options"), py::arg("chain"),
+        py::arg("max_events") = 0);
 }
 
 }  // namespace loschmidt::bind

@@ -8,12 +8,23 @@
 #include <pybind11/stl.h>
 
 #include <limits>
+#include <utility>
 
 #include "loschmidt/methods/chain.hpp"
 #include "loschmidt/methods/options.hpp"
 
 namespace loschmidt::bind {
 namespace py = pybind11;
+
+// The event log of one run (methods/events.hpp), as numpy columns of equal length: t (double),
+// i, j (int64; j = -1 for the outer orbit of three bodies), distance (double).
+struct EventColumns {
+  py::object t, i, j, distance;
+};
+struct EventRecord {
+  EventColumns passages, outer, closest;
+  long long dropped = 0;
+};
 
 // One single-system run: the final state (limbs), its time, the statistics and what the methods
 // report besides; the Lyapunov fields are None (and nan, 0) for integrate.
@@ -28,6 +39,7 @@ struct RunRecord {
   double log_growth = std::numeric_limits<double>::quiet_NaN();
   long long renormalizations = 0;
   py::object tangent_positions = py::none(), tangent_velocities = py::none();
+  py::object events = py::none();  // an EventRecord when the run kept an event log
 };
 
 // One batch: per-system columns (first axis M). For task "integrate" the returned_* and delta*
@@ -59,7 +71,14 @@ inline void register_types(py::module_& m) {
           [](Options& o, int v) { o.stop = static_cast<StopCondition>(v); })
       .def_readwrite("check_every", &Options::check_every)
       .def_readwrite("distance_factor", &Options::distance_factor)
-      .def_readwrite("fixed_step", &Options::fixed_step);
+      .def_readwrite("fixed_step", &Options::fixed_step)
+      .def_readwrite("stop_distance", &Options::stop_distance)
+      .def_property(
+          "stop_pair", [](const Options& o) { return std::make_pair(o.stop_pair_i, o.stop_pair_j); },
+          [](Options& o, const std::pair<int, int>& p) {
+            o.stop_pair_i = p.first;
+            o.stop_pair_j = p.second;
+          });
 
   py::class_<ChainOptions>(m, "ChainOptions", "The chain method's options (methods/chain.hpp); C++ defaults.")
       .def(py::init<>())
@@ -82,6 +101,18 @@ inline void register_types(py::module_& m) {
       .def_readonly("stop_i", &Stats::stop_i)
       .def_readonly("stop_j", &Stats::stop_j);
 
+  py::class_<EventColumns>(m, "EventColumns", "Events as columns t, i, j, distance (see _core.pyi).")
+      .def_readonly("t", &EventColumns::t)
+      .def_readonly("i", &EventColumns::i)
+      .def_readonly("j", &EventColumns::j)
+      .def_readonly("distance", &EventColumns::distance);
+
+  py::class_<EventRecord>(m, "EventRecord", "The event log of one run (methods/events.hpp; see _core.pyi).")
+      .def_readonly("passages", &EventRecord::passages)
+      .def_readonly("outer", &EventRecord::outer)
+      .def_readonly("closest", &EventRecord::closest)
+      .def_readonly("dropped", &EventRecord::dropped);
+
   py::class_<RunRecord>(m, "RunRecord", "What a single-system kernel returns (see _core.pyi).")
       .def_readonly("positions", &RunRecord::positions)
       .def_readonly("velocities", &RunRecord::velocities)
@@ -99,7 +130,8 @@ inline void register_types(py::module_& m) {
       .def_readonly("log_growth", &RunRecord::log_growth)
       .def_readonly("renormalizations", &RunRecord::renormalizations)
       .def_readonly("tangent_positions", &RunRecord::tangent_positions)
-      .def_readonly("tangent_velocities", &RunRecord::tangent_velocities);
+      .def_readonly("tangent_velocities", &RunRecord::tangent_velocities)
+      .def_readonly("events", &RunRecord::events);
 
   py::class_<BatchRecord>(m, "BatchRecord", "What a batch kernel returns: per-system columns (see _core.pyi).")
       .def_readonly("positions", &BatchRecord::positions)

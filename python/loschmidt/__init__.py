@@ -7,7 +7,7 @@ double-double and quad-double precision, and tell converged, reversible solution
 from __future__ import annotations
 
 from . import _core
-from . import ics, orbits, precision, units
+from . import ics, orbits, precision, scattering, units
 from .ensemble import Ensemble
 from .chaos import (
     Convergence,
@@ -21,7 +21,7 @@ from .chaos import (
     lyapunov,
     roundtrip,
 )
-from . import batch, plots, report, store, sweep
+from . import batch, events, plots, report, store, sweep
 from .batch import BatchResult, integrate_batch, roundtrip_batch
 from .store import read_store
 from .sweep import Sweep, available_tasks, register_task

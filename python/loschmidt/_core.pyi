@@ -38,6 +38,9 @@ class Options:
     check_every: int
     distance_factor: float
     fixed_step: float
+    #: StopCondition.pair_distance (bit 2 of stop): the distance, and the pair watched ((-1, -1): any).
+    stop_distance: float
+    stop_pair: tuple[int, int]
     def __init__(self) -> None: ...
 
 class ChainOptions:
@@ -69,6 +72,33 @@ class Stats:
     def stop_i(self) -> int: ...
     @property
     def stop_j(self) -> int: ...
+
+class EventColumns:
+    """Events as columns of equal length: time t (from the start of the run), bodies i, j (int64;
+    j = -1 for body i about the centre of mass of the others) and distance."""
+
+    @property
+    def t(self) -> npt.NDArray[np.float64]: ...
+    @property
+    def i(self) -> npt.NDArray[np.int64]: ...
+    @property
+    def j(self) -> npt.NDArray[np.int64]: ...
+    @property
+    def distance(self) -> npt.NDArray[np.float64]: ...
+
+class EventRecord:
+    """The event log of one run (methods/events.hpp): pericentre passages of pairs, the outer
+    orbit's passages (three bodies), one closest approach per pair, and the passages dropped
+    beyond max_events."""
+
+    @property
+    def passages(self) -> EventColumns: ...
+    @property
+    def outer(self) -> EventColumns: ...
+    @property
+    def closest(self) -> EventColumns: ...
+    @property
+    def dropped(self) -> int: ...
 
 class RunRecord:
     """One single-system run (integrate_<p>, lyapunov_<p>). Limbs: positions, velocities (N, 3, k),
@@ -110,6 +140,8 @@ class RunRecord:
     def tangent_positions(self) -> Optional[Limbs]: ...
     @property
     def tangent_velocities(self) -> Optional[Limbs]: ...
+    @property
+    def events(self) -> Optional[EventRecord]: ...
 
 class BatchRecord:
     """One batch: per-system columns, first axis M. positions, velocities (M, N, 3, k) and t (M, k):
@@ -144,7 +176,9 @@ class BatchRecord:
 
 # One of each per precision <p> in f64, f64c, dd, qd (shown for f64).
 def integrate_f64(method: str, masses: Limbs, positions: Limbs, velocities: Limbs, t_end: Limbs, times: Limbs,
-                  options: Options, chain: ChainOptions) -> RunRecord: ...
+                  options: Options, chain: ChainOptions, max_events: int = 0) -> RunRecord: ...
+# max_events > 0: the run keeps an event log of at most that many passages (RunRecord.events);
+# the pair-distance stop needs one.
 def lyapunov_f64(masses: Limbs, positions: Limbs, velocities: Limbs, tangent_positions: Limbs,
                  tangent_velocities: Limbs, t_end: Limbs, times: Limbs, options: Options,
                  renormalize: float) -> RunRecord: ...

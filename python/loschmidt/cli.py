@@ -5,6 +5,7 @@
     loschmidt sweep CONFIG.toml [--resume] [--scheduler ADDRESS] [--threads N]
     loschmidt plot STORE [STORE ...] --kind KIND -o FILE.png
     loschmidt report STORE [STORE ...] -o report.html
+    loschmidt scatter STORE --speeds 0.3,1,3 [--members N] binary-single cross sections (resumable)
     loschmidt bench [--quick]                       the benchmarks of a source checkout
 
 Configuration files are TOML (``tomllib``, or ``tomli`` before Python 3.11); every key is checked,
@@ -171,7 +172,15 @@ _TOML_KINDS: dict[str, Callable] = {
     "span": lambda v, w: _check_number(v, w, allow_string=True),
     "numbers": lambda v, w: _check_numbers(v, w),
     "orders": lambda v, w: _pn_orders(v, w),
+    "boolean": _check_bool,
+    "integers": lambda v, w: _check_integers(v, w),
 }
+
+
+def _check_integers(v: Any, where: str) -> list:
+    if not isinstance(v, list):
+        raise ConfigError(f"{where}: expected a list of integers, got {v!r}")
+    return [_integer(x, f"{where}[{k}]") for k, x in enumerate(v)]
 
 
 def _option_checks(names: tuple) -> dict[str, Callable]:
@@ -643,7 +652,44 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-_PLOT_KINDS = ("map", "lifetime", "delta-histogram", "lifetime-histogram", "amplification", "orbit")
+_PLOT_KINDS = ("map", "lifetime", "delta-histogram", "lifetime-histogram", "amplification", "orbit",
+               "cross-section")
+
+
+def _speed_list(text: str) -> tuple:
+    try:
+        values = tuple(float(x) for x in text.split(","))
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected comma-separated numbers, got {text!r}") from None
+    if not values or not all(math.isfinite(v) and v > 0 for v in values):
+        raise argparse.ArgumentTypeError(f"expected positive numbers, got {text!r}")
+    return values
+
+
+def _cmd_scatter(args: argparse.Namespace) -> int:
+    from . import Sweep, scattering
+
+    if len(args.masses) != 3:
+        raise ConfigError(f"--masses: expected three masses m1,m2,m3, got {len(args.masses)}")
+    try:
+        ens = scattering.binary_single_ensemble(args.members, args.seed, masses=args.masses,
+                                                eccentricity=args.eccentricity, v_over_vc=args.speeds,
+                                                pericentre_max=args.pericentre_max)
+        sweep = Sweep(ens, task="scattering", store=args.store, chunk_size=100, threads=args.threads,
+                      budget_periods=args.budget_periods)
+    except ValueError as exc:
+        raise ConfigError(str(exc)) from None
+    df = sweep.run(progress=sys.stderr.isatty()).results()
+    cs = scattering.cross_sections(df)
+    print(f"{len(df)} encounters in {args.store}; cross sections / (pi a^2) +- Monte Carlo error:")
+    kinds = scattering.ENCOUNTER_OUTCOMES
+    print("v/v_c   " + "".join(f"{k:>24}" for k in kinds) + "   mean (B_f - B_i)/B_i")
+    for v, g in cs.groupby("v_over_vc", sort=True):
+        cells = "".join(f"{r.sigma_pi_a2:>14.4g} +- {r.sigma_pi_a2_error:<7.2g}"
+                        for k in kinds for r in [g[g.outcome == k].iloc[0]])
+        r0 = g.iloc[0]
+        print(f"{v:<8g}{cells}   {r0.mean_energy_change:+.4f} +- {r0.mean_energy_change_error:.2g}")
+    return EXIT_OK
 
 
 def _store_label(store: Path) -> str:
@@ -695,6 +741,11 @@ def _cmd_plot(args: argparse.Namespace) -> int:
                 raise _Failed(f"{label}: the ensemble has no x, y parameters to map")
         fig = (plots.lifetime_map(frames, units=u, title=args.title) if kind == "lifetime"
                else plots.lifetime_histogram(frames, units=u, title=args.title))
+    elif kind == "cross-section":
+        df = load_results(stores[0])
+        if "energy_change" not in df.columns:
+            raise _Failed(f"{_store_label(stores[0])}: --kind cross-section needs a sweep with task 'scattering'")
+        fig = plots.cross_section_plot(df, title=args.title)
     else:
         fig = _member_plot(stores[0], kind, args, u)
     path = plots.save(fig, args.output, dpi=args.dpi, pixels=pixels)
@@ -941,6 +992,17 @@ def _parser() -> argparse.ArgumentParser:
     rp.add_argument("--threshold", type=_positive_float, default=REVERSIBLE_THRESHOLD)
     rp.set_defaults(func=_cmd_report)
 
+    sc = sub.add_parser("scatter", help="binary-single encounters into a resumable store, and their cross sections")
+    sc.add_argument("store", help="the store directory (run again to resume)")
+    sc.add_argument("--speeds", required=True, type=_speed_list, help="v_inf / v_c, comma-separated (e.g. 0.3,1,3)")
+    sc.add_argument("--members", type=_positive_int, default=200, help="encounters per speed (200)")
+    sc.add_argument("--masses", type=_speed_list, default=(1.0, 1.0, 1.0), help="m1,m2,m3 (1,1,1)")
+    sc.add_argument("--eccentricity", type=float, default=0.0, help="of the binary (0)")
+    sc.add_argument("--pericentre-max", type=float, default=None, help="largest pericentre (4 a (1 + e))")
+    sc.add_argument("--budget-periods", type=float, default=1000.0, help="resonance budget in binary periods (1000)")
+    sc.add_argument("--seed", type=int, default=0, help="seed of the draws (0)")
+    sc.add_argument("--threads", type=_positive_int, default=None, help="threads (all cores)")
+    sc.set_defaults(func=_cmd_scatter)
     b = sub.add_parser("bench", help="the benchmark suite (from a source checkout)")
     b.add_argument("--quick", action="store_true")
     b.set_defaults(func=_cmd_bench)

@@ -68,11 +68,13 @@ def integrate(method: str, masses: np.ndarray, positions: np.ndarray, velocities
     Returns
     -------
     _core.RunRecord
-        The engine's record of the run (``_core.pyi``).
+        The engine's record of the run (``_core.pyi``); its ``events`` is the event log when the
+        settings keep one (``Settings.event_capacity``).
     """
     opt, chain = engine_options(settings)
     chain.radii = radii
-    return _kernel("integrate", settings.precision)(method, masses, positions, velocities, t_limbs, times, opt, chain)
+    return _kernel("integrate", settings.precision)(method, masses, positions, velocities, t_limbs, times, opt, chain,
+                                                    settings.event_capacity())
 
 
 def batch(task: str, masses: np.ndarray, positions: np.ndarray, velocities: np.ndarray, t_limbs: np.ndarray,

@@ -23,6 +23,11 @@ Ensembles:
 - :func:`free_fall_grid`, :func:`free_fall_random` the free-fall problem over the Agekyan-Anosova
   region (Agekyan & Anosova 1967).
 - :func:`virial_triples` random triples in virial equilibrium with a chosen angular momentum.
+
+Scattering: :func:`loschmidt.scattering.binary_single` (one binary-single encounter, the incomer
+on its exact hyperbola from infinity) and :func:`loschmidt.scattering.binary_single_ensemble`
+(seeded encounters with impact parameters uniform in area; Hut & Bahcall 1983, ApJ 268, 319) live
+in their own module, which builds on this one.
 """
 
 from __future__ import annotations

@@ -158,6 +158,11 @@ class Result:
         escaped (status ``stop_condition``); None otherwise.
     mergers : tuple of (float, int, int)
         With ``merge=True``: the mergers, as (time, i, j) with the body indices at that moment.
+    events : loschmidt.events.EventLog or None
+        With ``events=True`` (or the pair-distance stop): pericentre passages and closest
+        approaches of every pair.
+    stop_pair : (int, int) or None
+        The pair that met the pair-distance stop (status ``stop_condition``).
 
     Examples
     --------
@@ -188,6 +193,8 @@ class Result:
     rechains: int = 0
     lifetime: float | None = None
     mergers: tuple = ()
+    events: Any = field(default=None, compare=False, repr=False)
+    stop_pair: tuple[int, int] | None = None
 
     @property
     def success(self) -> bool:
@@ -437,7 +444,8 @@ def integrate(
     prec = system.precision
     method = _o.resolve_method(method, system.n, options, carries_radii=system.radii is not None)
     t_limbs = _time_limbs(t, prec, "t")
-    settings = _o.resolve(options, method=method, precision=prec, entry="integrate", t_limbs=t_limbs)
+    settings = _o.resolve(options, method=method, precision=prec, entry="integrate", t_limbs=t_limbs,
+                          bodies=system.n)
     radii = _o.system_radii(system.radii, method)
     outs = _output_times(times, t_limbs, prec)
     if not isinstance(merge, (bool, np.bool_)):
@@ -447,6 +455,8 @@ def integrate(
     if merge and outs.shape[0]:
         raise ValueError("times: not available with merge=True (the number of bodies changes at a merger)")
 
+    if merge and settings["events"]:
+        raise ValueError("events: not available with merge=True (the bodies change at a merger)")
     raw = _engine.integrate(method, system.limbs("masses"), system.limbs("positions"), system.limbs("velocities"),
                             t_limbs, outs, settings, radii)
     result = _wrap(system, raw, method, prec, settings["tol"], bool(outs.shape[0]))
@@ -583,7 +593,18 @@ def _wrap(system: System, raw: Any, method: str, prec: str, rtol: float, want_tr
         collision=(int(raw.collision_i), int(raw.collision_j)) if raw.collision_i >= 0 else None,
         rechains=int(raw.rechains),
         lifetime=float(_p.to_float(raw.t)) if status_name(code) == "stop_condition" else None,
+        events=_events(raw, system.time),
+        stop_pair=(int(raw.stats.stop_i), int(raw.stats.stop_j)) if raw.stats.stopped_by == _o.STOP_CODES["pair_distance"]
+        else None,
     )
+
+
+def _events(raw: Any, t0: float) -> Any:
+    if raw.events is None:
+        return None
+    from .events import EventLog
+
+    return EventLog._from_record(raw.events, t0)
 
 
 def _common(a: System, b: System) -> tuple[System, System, str]:

@@ -43,6 +43,8 @@ __all__ = [
     "DEFAULT_MERGER_FACTOR",
     "DEFAULT_DISTANCE_FACTOR",
     "DEFAULT_MAX_STEPS",
+    "DEFAULT_MAX_EVENTS",
+    "STOP_CODES",
     "Settings",
     "resolve",
     "names_for",
@@ -86,8 +88,11 @@ DEFAULT_MAX_STEPS = 10**9
 _INT64_MAX = 2**63 - 1
 _INT32_MAX = 2**31 - 1
 
-#: The engine's codes of the stop conditions (StopCondition in methods/options.hpp).
-_STOP_CODES = {"escape": 1}
+#: The engine's codes of the stop conditions (StopCondition in methods/options.hpp); a set of bits.
+STOP_CODES = {"escape": 1, "pair_distance": 2}
+
+#: Most passages an event log keeps when ``max_events`` is not given (the rest are counted).
+DEFAULT_MAX_EVENTS = 1_000_000
 
 #: The entry points, for options that only some of them take.
 ENTRIES = ("integrate", "batch", "lyapunov")
@@ -379,9 +384,49 @@ def _merger_factor(v: Any, c: "_Context") -> float:
 
 
 def _stop(v: Any, c: "_Context") -> str:
-    if v != "escape":
-        raise ValueError(f"stop: expected None or 'escape', got {v!r}")
+    if not isinstance(v, str) or v not in STOP_CODES:
+        raise ValueError(f"stop: expected None, 'escape' or 'pair_distance', got {v!r}")
+    if v == "pair_distance":
+        if c.entry != "integrate":
+            raise ValueError("stop: 'pair_distance' needs the event log of a single run (integrate), "
+                             f"not {c.entry}")
+        if c.given.get("stop_distance") is None:
+            raise ValueError("stop_distance: required with stop='pair_distance' (a positive distance)")
     return v
+
+
+def _events(v: Any, c: "_Context") -> bool:
+    if not isinstance(v, (bool, np.bool_)):
+        raise TypeError(f"events: expected True or False, got {type(v).__name__}")
+    return bool(v)
+
+
+def _max_events(v: Any, c: "_Context") -> int:
+    return positive(v, "max_events", integer=True)
+
+
+def _stop_distance(v: Any, c: "_Context") -> float:
+    if c.given.get("stop") != "pair_distance":
+        raise ValueError("stop_distance: only with stop='pair_distance'")
+    return positive(v, "stop_distance")
+
+
+def _stop_pair(v: Any, c: "_Context") -> list:
+    if c.given.get("stop") != "pair_distance":
+        raise ValueError("stop_pair: only with stop='pair_distance'")
+    if isinstance(v, (str, bytes)):
+        raise TypeError("stop_pair: expected a pair of body indices, or None for any pair")
+    try:
+        pair = list(v)
+    except TypeError:
+        raise TypeError("stop_pair: expected a pair of body indices, or None for any pair") from None
+    if len(pair) != 2 or any(isinstance(x, (bool, np.bool_)) or not isinstance(x, numbers.Integral) for x in pair):
+        raise TypeError("stop_pair: expected a pair of body indices, or None for any pair")
+    i, j = int(pair[0]), int(pair[1])
+    below = _INT32_MAX if c.bodies is None else c.bodies
+    if not (0 <= i < below and 0 <= j < below and i != j):
+        raise ValueError(f"stop_pair: expected two different body indices below {below}, got {v!r}")
+    return [i, j]
 
 
 def _check_every(v: Any, c: "_Context") -> int:
@@ -430,7 +475,8 @@ class Option:
         definitions without it keep their hash).
     toml : str
         What a TOML file holds for it: ``"number"``, ``"integer"``, ``"string"``, ``"span"`` (a number
-        or a decimal string), ``"numbers"`` (a list) or ``"orders"`` (a list of PN orders).
+        or a decimal string), ``"numbers"`` (a list), ``"integers"`` (a list of integers), ``"boolean"``
+        or ``"orders"`` (a list of PN orders).
     field : str or None
         The field of the engine's ``Options`` or ``ChainOptions`` (``_core.pyi``) it sets when
         given; unset, the field keeps its C++ default. None: not passed as a field.
@@ -521,7 +567,7 @@ OPTIONS: dict[str, Option] = {o.name: o for o in (
        "``Result.collision`` (8: 16 G M / c^2, v/c ~ 0.25 on a circular orbit, where the PN expansion "
        "is about to fail); 0 switches the test off. The bodies are not merged.", _merger_factor,
        methods=("chain",), entries=("integrate", "batch"), manifest="given", field="merger_factor"),
-    _O("stop", "{None, 'escape'}", "None",
+    _O("stop", "{None, 'escape', 'pair_distance'}", "None",
        "``'escape'``: every ``check_every`` accepted steps the engine tests, in double precision, "
        "whether a body escapes, and stops with status ``stop_condition`` when one does; ``t`` is then "
        "the longest span and ``Result.lifetime`` the time it stopped. The test is that of "
@@ -530,14 +576,29 @@ OPTIONS: dict[str, Option] = {o.name: o for o in (
        "``distance_factor`` semimajor axes of the pair); for N > 3 a body unbound from the centre of "
        "mass of all the others, receding, and farther than ``distance_factor`` times their size "
        "(cpp/include/loschmidt/nbody/escape.hpp). It is a trigger: classify the final state with "
-       "``loschmidt.outcome``.", _stop,
+       "``loschmidt.outcome``. ``'pair_distance'`` (``integrate`` only): see ``stop_distance``.", _stop,
        entries=("integrate", "batch"), manifest="given", toml="string",
-       field="stop", engine=lambda name: _STOP_CODES[name]),
+       field="stop", engine=lambda name: STOP_CODES[name]),
     _O("check_every", "int", "10", "Accepted steps between escape tests.", _check_every,
        entries=("integrate", "batch"), manifest="given", toml="integer", field="check_every"),
     _O("distance_factor", "float", f"{DEFAULT_DISTANCE_FACTOR:g}",
        "k of the escape test (``loschmidt.outcome``); 0 drops the distance condition.", _distance_factor,
        entries=("integrate", "batch"), manifest="given", field="distance_factor"),
+    _O("events", "bool", "False",
+       "Record the event log (:mod:`loschmidt.events`): pericentre passages and the closest approach "
+       "of every pair (and, for three bodies, the outer orbit's passages), in ``Result.events``, "
+       "found after every accepted step without output times.", _events,
+       entries=("integrate",), manifest="given", toml="boolean"),  # the kernel's log: engine.integrate
+    _O("max_events", "int", f"{DEFAULT_MAX_EVENTS:,}",
+       "Most passages the event log keeps (the rest are counted in ``EventLog.dropped``).", _max_events,
+       entries=("integrate",), manifest="given", toml="integer"),
+    _O("stop_distance", "float", "none (required with ``stop='pair_distance'``)",
+       "With ``stop='pair_distance'``: end the run (status ``stop_condition``) at the end of the first "
+       "accepted step in which ``stop_pair`` (any pair when unset) came closer than this (minima inside "
+       "a step count); the pair is in ``Result.stop_pair``. Keeps an event log.", _stop_distance,
+       entries=("integrate",), manifest="given", field="stop_distance"),
+    _O("stop_pair", "(int, int)", "any pair", "The pair watched by ``stop_distance`` (bodies from 0).",
+       _stop_pair, entries=("integrate",), manifest="given", toml="integers", field="stop_pair"),
 )}
 
 
@@ -595,6 +656,8 @@ class _Context:
     precision: str
     given: Mapping[str, Any]
     t_limbs: Any
+    entry: str = "integrate"
+    bodies: int | None = None
 
 
 @dataclass(frozen=True)
@@ -670,6 +733,18 @@ class Settings:
         c = self.values.get("c")
         return [] if c is None else [float(x) for x in _p.to_limbs(c, self.precision, name="c")]
 
+    def event_capacity(self) -> int:
+        """Most passages the run's event log keeps; 0 when the run keeps no log (neither ``events``
+        nor ``stop='pair_distance'``, whose test is the log's).
+
+        Returns
+        -------
+        int
+        """
+        if not (self.values.get("events") or self.values.get("stop") == "pair_distance"):
+            return 0
+        return self.get("max_events", DEFAULT_MAX_EVENTS)
+
     def engine_options(self) -> dict:
         """What the engine's options receive: the fields of the options given (``Option.field``);
         the others keep the engine's defaults (``_core.Options()``).
@@ -710,7 +785,7 @@ def refuse(name: str, method: str) -> ValueError:
 
 
 def resolve(given: Mapping[str, Any], *, method: Any = "gbs", precision: Any = "dd", entry: str = "integrate",
-            t_limbs: Any = None) -> Settings:
+            t_limbs: Any = None, bodies: int | None = None) -> Settings:
     """Check the options of one entry point and return their canonical values.
 
     Parameters
@@ -725,6 +800,8 @@ def resolve(given: Mapping[str, Any], *, method: Any = "gbs", precision: Any = "
         The entry point: an option it does not take is a ``TypeError``.
     t_limbs : numpy.ndarray, optional
         The span (limbs), for checks that need it (``fixed_step``'s budget).
+    bodies : int, optional
+        Number of bodies, for checks that need it (``stop_pair``'s indices).
 
     Returns
     -------
@@ -742,7 +819,7 @@ def resolve(given: Mapping[str, Any], *, method: Any = "gbs", precision: Any = "
     for name in given:
         if name not in OPTIONS or entry not in OPTIONS[name].entries:
             raise TypeError(f"{name}: not an option of {entry} (expected some of {list(names_for(entry))})")
-    ctx = _Context(method, prec, given, t_limbs)
+    ctx = _Context(method, prec, given, t_limbs, entry, bodies)
     values: dict = {}
     for name in names_for(entry):
         option = OPTIONS[name]

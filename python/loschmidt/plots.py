@@ -13,6 +13,8 @@ one colour scale, or overlaid histograms.
 - :func:`delta_histogram`, :func:`lifetime_histogram`: their distributions.
 - :func:`amplification_plot`: growth of a small perturbation against time.
 - :func:`orbit_plot`: one system's paths in the x-y plane.
+- :func:`cross_section_plot`: binary-single cross sections against v_inf / v_c and the binary's
+  energy change (a ``scattering`` sweep).
 
 Lengths and times are in N-body units unless an :class:`AxisUnits` (``axis_units(scale)``) says
 how to show them in physical units.
@@ -36,6 +38,7 @@ __all__ = [
     "lifetime_histogram",
     "amplification_plot",
     "orbit_plot",
+    "cross_section_plot",
     "save",
     "DEFAULT_THRESHOLD",
 ]
@@ -882,3 +885,78 @@ def to_png_bytes(fig: Any, dpi: float = 110) -> bytes:
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=dpi)
     return buf.getvalue()
+
+
+# ---------------------------------------------------------------------------------------------------
+# binary-single scattering
+
+
+_OUTCOME_COLOURS = {"preservation": "#1f77b4", "exchange": "#d62728", "ionization": "#2ca02c",
+                    "merger": "#9467bd", "unresolved": "#7f7f7f"}
+
+
+def cross_section_plot(
+    data: Any,
+    semimajor_axis: float = 1.0,
+    title: str | None = None,
+    size: tuple[float, float] | None = None,
+):
+    """Cross sections of binary-single encounters against v_inf / v_c, and the binary's energy change.
+
+    Left: sigma / (pi a^2) per outcome (``loschmidt.scattering.cross_sections``) with Monte Carlo
+    error bars, log-log (outcomes never seen are left out). Right: the distribution of the
+    relative change of the binary's binding energy, (B_f - B_i) / B_i, one outline per speed,
+    over the encounters that leave a binary (positive: harder).
+
+    Parameters
+    ----------
+    data : table
+        A scattering sweep's results (``speed_index``, ``v_over_vc``, ``b_max``, ``outcome``,
+        ``energy_change``).
+    semimajor_axis : float, optional
+        The initial binary's semimajor axis (default 1).
+    title : str, optional
+        Figure title (a default otherwise).
+    size : (float, float), optional
+        Figure size in inches.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Built without pyplot; write it with :func:`save`.
+    """
+    from .scattering import ENCOUNTER_OUTCOMES, cross_sections
+
+    cs = cross_sections(data, semimajor_axis)
+    fig = _figure(size, (11.0, 4.6))
+    ax, bx = fig.subplots(1, 2)
+    for kind in ENCOUNTER_OUTCOMES:
+        rows = cs[(cs.outcome == kind) & (cs["count"] > 0)]
+        if not len(rows):
+            continue
+        ax.errorbar(rows.v_over_vc, rows.sigma_pi_a2, yerr=rows.sigma_pi_a2_error, marker="o", ms=4, capsize=3,
+                    color=_OUTCOME_COLOURS[kind], label=f"{kind} ({int(rows['count'].sum())})")
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlabel("v_inf / v_c")
+    ax.set_ylabel("cross section / (pi a^2)")
+    ax.legend(fontsize=8)
+    ax.grid(True, which="both", alpha=0.3)
+    change = _col(data, "energy_change")
+    speeds = _col(data, "v_over_vc")
+    kinds = _col(data, "outcome", object)
+    kept = np.isfinite(change) & np.isin(kinds, ("preservation", "exchange"))
+    x = np.sign(change) * np.log10(1 + np.abs(change) * 1e4)  # symmetric log, linear within 1e-4
+    bins = np.linspace(-5, 5, 61)
+    for v in np.unique(speeds):
+        sel = kept & (speeds == v)
+        if np.any(sel):
+            bx.hist(x[sel], bins=bins, histtype="step", lw=1.4, label=f"v/v_c = {v:g} ({np.count_nonzero(sel)})")
+    ticks = [-1, -1e-2, 0, 1e-2, 1]
+    bx.set_xticks([math.copysign(math.log10(1 + abs(t) * 1e4), t) for t in ticks])
+    bx.set_xticklabels([f"{t:g}" for t in ticks])
+    bx.set_xlabel("(B_final - B_initial) / B_initial  (> 0: harder)")
+    bx.set_ylabel("encounters")
+    bx.legend(fontsize=8)
+    fig.suptitle(title or "Binary-single scattering: cross sections and energy change", fontsize=11)
+    return fig

@@ -24,7 +24,7 @@ from typing import Any, Iterable, Sequence
 import numpy as np
 
 __all__ = ["write_report", "read_settings", "store_scale", "load_results", "statistics", "rerun_options",
-           "RerunOptions", "map_kind", "THRESHOLDS"]
+           "RerunOptions", "map_kind", "THRESHOLDS", "scattering_section"]
 
 #: Round-trip distances at which the reversible fraction is tabulated.
 THRESHOLDS = (1e-4, 1e-6, 1e-8, 1e-10, 1e-12, 1e-14)
@@ -505,6 +505,11 @@ def write_report(stores: Any, path: Any, title: str | None = None, threshold: fl
             parts.append(_img(plots.lifetime_map(mapped(lifetimes), units=u), "map of lifetimes"))
         parts.append(_img(plots.lifetime_histogram(lifetimes, units=u), "histogram of lifetimes"))
 
+    scatterings = {_label(p, m, s): d for p, m, s, d in entries
+                   if (m.get("definition") or {}).get("task") == "scattering" and len(d)}
+    for label, df in scatterings.items():
+        parts.extend(scattering_section(label, df))
+
     for name, rows in sections:
         parts.append(f"<h2>{html.escape(str(name))}</h2>")
         parts.append(_table(rows))
@@ -531,4 +536,44 @@ def write_report(stores: Any, path: Any, title: str | None = None, threshold: fl
     tmp = out.with_name(f".{out.name}.tmp")
     tmp.write_text(page, encoding="utf-8")
     tmp.replace(out)
+    return out
+
+
+def scattering_section(label: str, df: Any) -> list[str]:
+    """The report section of a binary-single scattering store: cross sections and energy change.
+
+    Parameters
+    ----------
+    label : str
+        The store's label.
+    df : pandas.DataFrame
+        Its results (task ``"scattering"``).
+
+    Returns
+    -------
+    list of str
+        HTML fragments: a heading, the figure (``plots.cross_section_plot``) and a table of
+        sigma / (pi a^2) per outcome and speed with Monte Carlo errors, the mean binding-energy
+        change and the unresolved fraction.
+    """
+    from . import plots
+    from .scattering import ENCOUNTER_OUTCOMES, cross_sections
+
+    cs = cross_sections(df)
+    out = [f"<h2>Binary-single scattering: {html.escape(label)}</h2>",
+           _img(plots.cross_section_plot(df), "cross sections against v_inf / v_c and the energy change")]
+    head = "".join(f"<th>{k}</th>" for k in ENCOUNTER_OUTCOMES)
+    rows = [f"<table>\n<tr><th>v_inf / v_c</th><th>members</th>{head}<th>mean (B_f - B_i) / B_i</th></tr>"]
+    for v, g in cs.groupby("v_over_vc", sort=True):
+        cells = "".join(
+            f"<td>{r.sigma_pi_a2:.4g} &plusmn; {r.sigma_pi_a2_error:.2g}</td>"
+            for kind in ENCOUNTER_OUTCOMES for r in [g[g.outcome == kind].iloc[0]])
+        r0 = g.iloc[0]
+        rows.append(f"<tr><th>{v:g}</th><td>{int(r0.members)}</td>{cells}"
+                    f"<td>{r0.mean_energy_change:+.4f} &plusmn; {r0.mean_energy_change_error:.2g}</td></tr>")
+    rows.append("</table>")
+    out.append("\n".join(rows))
+    out.append('<p class="muted">Cross sections in units of pi a^2 (a: the initial semimajor axis, taken as 1), '
+               "sigma = pi b_max^2 x fraction, errors binomial (Monte Carlo). Unresolved: the budget ran out "
+               "first; never guessed.</p>")
     return out

@@ -202,6 +202,9 @@ def _register_builtin_tasks() -> None:
 
     register_task("lifetime", run_lifetime, prepare_lifetime, replace=True)
     register_task("amplification", run_amplification, prepare_amplification, replace=True)
+    from .scattering import prepare_scattering, run_scattering
+
+    register_task("scattering", run_scattering, prepare_scattering, replace=True)
 
 
 _register_builtin_tasks()

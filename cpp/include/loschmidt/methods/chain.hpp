@@ -64,6 +64,7 @@
 
 #include <loschmidt/methods/budget.hpp>
 #include <loschmidt/methods/chain_coordinates.hpp>
+#include <loschmidt/methods/events.hpp>
 #include <loschmidt/methods/extrapolation.hpp>
 #include <loschmidt/methods/leapfrog.hpp>
 #include <loschmidt/methods/options.hpp>
@@ -357,6 +358,13 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
   RunBudget<T> budget(opt, clock_start);
   StopMonitor<T> stop;
   stop.setup(opt, s);
+  if (opt.events != nullptr) opt.events->start(t, s);
+  // Hands the physical state after an accepted step to the event log; true: its stop holds.
+  auto log_step = [&]() {
+    if (opt.events == nullptr) return false;
+    store();
+    return opt.events->observe(t, s, opt, st);
+  };
 
   const double dir = forward ? 1.0 : -1.0;
   const double span = std::fabs(to_double(t_end - t));
@@ -519,6 +527,7 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
   bool first = true;
 
   while (true) {
+    const long long steps_before = st.steps;  // for the event log
     const T& target = next_out < n_out ? output_times[next_out] : t_end;
     const T rem = target - time_now();
     bool landed = false;
@@ -638,7 +647,15 @@ Stats integrate_chain(State<T>& s, T& t, const T& t_end, const std::vector<T>& o
         on_output(static_cast<int>(next_out), static_cast<const T&>(t), static_cast<const State<T>&>(s));
         ++next_out;
       }
-      if (target == t_end) break;
+      if (target == t_end) {
+        if (st.steps != steps_before && log_step()) status = Status::stop_condition;
+        break;
+      }
+    }
+    // ---- event log and its pair-distance stop, every accepted step (on the physical state)
+    if (st.steps != steps_before && log_step()) {
+      status = Status::stop_condition;
+      break;
     }
     // ---- stop conditions, every check_every accepted steps (on the physical state)
     if (stepped && stop.due(st.steps)) {

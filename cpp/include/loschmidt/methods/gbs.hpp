@@ -31,6 +31,7 @@
 #include <loschmidt/methods/options.hpp>
 #include <loschmidt/methods/status.hpp>
 #include <loschmidt/methods/step_control.hpp>
+#include <loschmidt/methods/events.hpp>
 #include <loschmidt/methods/stop.hpp>
 #include <loschmidt/methods/validate.hpp>
 #include <loschmidt/nbody/forces.hpp>
@@ -291,6 +292,13 @@ Stats run_extrapolation(Problem& pb, State<T>& s, T& t, const T& t_end, const st
 
   StopMonitor<T> stop;
   stop.setup(opt, s);
+  if (opt.events != nullptr) opt.events->start(t, s);
+  // Hands the physical state after an accepted step to the event log; true: its stop holds.
+  auto log_step = [&]() {
+    if (opt.events == nullptr) return false;
+    store();
+    return opt.events->observe(t, s, opt, st);
+  };
   RunBudget<T> budget(opt, clock_start);
 
   const double dir = forward ? 1.0 : -1.0;
@@ -398,7 +406,15 @@ Stats run_extrapolation(Problem& pb, State<T>& s, T& t, const T& t_end, const st
         on_output(static_cast<int>(next_out), static_cast<const T&>(t), static_cast<const State<T>&>(s));
         ++next_out;
       }
-      if (t == t_end) break;
+      if (t == t_end) {
+        if (stepped && log_step()) status = Status::stop_condition;
+        break;
+      }
+    }
+    // ---- event log and its pair-distance stop, every accepted step
+    if (stepped && log_step()) {
+      status = Status::stop_condition;
+      break;
     }
     // ---- stop conditions, every check_every accepted steps
     if (stepped && stop.due(st.steps)) {

@@ -25,10 +25,15 @@ enum class StepSequence : int {
 // here, its parameters in Options, its test in StopMonitor::met).
 enum class StopCondition : int {
   none = 0,
-  escape = 1  // a body escapes (nbody/escape.hpp)
+  escape = 1,        // a body escapes (nbody/escape.hpp)
+  pair_distance = 2  // a pair comes closer than Options::stop_distance (tested by the event log,
+                     // methods/events.hpp, on every accepted step; needs Options::events)
 };
 // Every defined condition; anything else is refused by validate (methods/validate.hpp).
-inline constexpr int stop_conditions_known = static_cast<int>(StopCondition::escape);
+inline constexpr int stop_conditions_known =
+    static_cast<int>(StopCondition::escape) | static_cast<int>(StopCondition::pair_distance);
+
+class EventLog;  // methods/events.hpp
 
 constexpr StopCondition operator|(StopCondition a, StopCondition b) {
   return static_cast<StopCondition>(static_cast<int>(a) | static_cast<int>(b));
@@ -83,6 +88,15 @@ struct Options {
   StopCondition stop = StopCondition::none;
   int check_every = 10;
   double distance_factor = 10.0;
+  // Event log (methods/events.hpp), owned by the caller: when set, every method hands it the
+  // physical state after each accepted step; it records pericentre passages and closest
+  // approaches, and tests StopCondition::pair_distance: the pair (stop_pair_i, stop_pair_j), or
+  // any pair when stop_pair_i < 0, closer than stop_distance within a step ends the run with
+  // Status::stop_condition at the end of that step. One log per run: not for the batch driver,
+  // whose workers share the Options.
+  EventLog* events = nullptr;
+  double stop_distance = 0.0;
+  int stop_pair_i = -1, stop_pair_j = -1;
   // Fixed-step mode (every method; for measuring the order of the method): when > 0, every step
   // has this magnitude (the sign follows the direction; the step before each output time and
   // t_end is shortened to land on it), uses exactly max_order rows of the tableau (any number

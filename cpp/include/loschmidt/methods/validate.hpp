@@ -38,6 +38,11 @@ inline void validate(const Options& opt, const char* who) {
   if (opt.check_every < 1) invalid(who, "check_every must be >= 1");
   if (!(opt.distance_factor >= 0) || !std::isfinite(opt.distance_factor))
     invalid(who, "distance_factor must be finite and >= 0");
+  if (stops_on(opt.stop, StopCondition::pair_distance)) {
+    if (opt.events == nullptr) invalid(who, "the pair_distance stop needs an event log (Options::events)");
+    if (!(opt.stop_distance > 0) || !std::isfinite(opt.stop_distance))
+      invalid(who, "stop_distance must be finite and > 0");
+  }
 }
 
 // The number of tableau rows: Options::max_order, 0 resolved to default_rows (the method's
@@ -61,6 +66,9 @@ void validate_run(const char* who, const State<T>& s, const T& t, const T& t_end
   if (s.n < 1) invalid(who, "need at least one body");
   if (!isfinite(t) || !isfinite(t_end)) invalid(who, "t and t_end must be finite");
   validate(opt, who);
+  if (stops_on(opt.stop, StopCondition::pair_distance) && opt.stop_pair_i >= 0 &&
+      (opt.stop_pair_i == opt.stop_pair_j || opt.stop_pair_i >= s.n || opt.stop_pair_j < 0 || opt.stop_pair_j >= s.n))
+    invalid(who, "stop_pair_i and stop_pair_j must be two different bodies (or stop_pair_i < 0 for any pair)");
   const bool forward = t_end > t;
   T prev = t;
   for (const T& q : output_times) {
