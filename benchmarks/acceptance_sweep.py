@@ -143,7 +143,7 @@ def main() -> int:
         store = out / "dask"
         shutil.rmtree(store, ignore_errors=True)
         with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                          dashboard_address=None) as cluster, Client(cluster) as client:
+                          dashboard_address=":0") as cluster, Client(cluster) as client:
             t0 = time.perf_counter()
             dask_df = _sweep(ens, store, args, executor=client).run(progress=False).results()
             rows.append(("dask", time.perf_counter() - t0, float("nan"), "2 worker processes x 1 thread"))

@@ -48,7 +48,8 @@ def main(argv: list[str] | None = None) -> int:
     if args.dask:
         from dask.distributed import Client, LocalCluster
 
-        client = Client(LocalCluster(n_workers=args.threads, threads_per_worker=1, processes=True))
+        client = Client(LocalCluster(n_workers=args.threads, threads_per_worker=1, processes=True, host="127.0.0.1",
+                                     dashboard_address=":0"))
         executor = client
     t1 = time.perf_counter()
     sweep = loschmidt.Sweep(ens, task="scattering", store=os.path.join(out, "store"), chunk_size=200,

@@ -93,7 +93,7 @@ def main() -> None:
 
             t0 = time.perf_counter()
             with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                              dashboard_address=None) as cluster, Client(cluster) as client:
+                              dashboard_address=":0") as cluster, Client(cluster) as client:
                 client.run(__import__, "loschmidt.sweep")  # workers import the package before timing
                 startup = time.perf_counter() - t0
                 dsw, sec, _ = timed(lambda: Sweep(ens, task="roundtrip", store=os.path.join(tmp, "dask"),

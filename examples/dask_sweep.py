@@ -100,7 +100,7 @@ def main(argv: list[str] | None = None) -> int:
         cluster = None
     else:
         cluster = LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                               dashboard_address=None)
+                               dashboard_address=":0")
         client = Client(cluster)
     try:
         workers = client.nthreads()

@@ -139,7 +139,7 @@ def test_dask_local_cluster_matches_local_threads(tmp_path: Path, reference_f64)
     from distributed import Client, LocalCluster
 
     with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                      dashboard_address=None) as cluster, Client(cluster) as client:
+                      dashboard_address=":0") as cluster, Client(cluster) as client:
         s = Sweep(ENS, task="roundtrip", store=tmp_path / "dask", chunk_size=5, executor=client, **F64)
         s.run(progress=False)
     assert same_bits(table(s), reference_f64)
